@@ -351,7 +351,7 @@ def plant_from_transfer_function(numerator, denominator, sample_time=None, **met
     Examples
     --------
     >>> plant = plant_from_transfer_function([1.0], [1.0, 3.0, 2.0])
-    >>> sorted(np.linalg.eigvals(plant.A).real)
+    >>> sorted(np.linalg.eigvals(plant.A).real.tolist())
     [-2.0, -1.0]
     """
     import scipy.signal

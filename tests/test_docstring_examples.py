@@ -1,0 +1,18 @@
+"""Run the Examples sections of the core's docstrings, so documentation cannot drift from the code."""
+
+import doctest
+import importlib
+import pkgutil
+
+import pytest
+
+import gainboard.core
+
+MODULES = sorted(info.name for info in pkgutil.iter_modules(gainboard.core.__path__, "gainboard.core."))
+
+
+@pytest.mark.parametrize("module_name", MODULES)
+def test_docstring_examples_run(module_name):
+    module = importlib.import_module(module_name)
+    result = doctest.testmod(module, optionflags=doctest.NORMALIZE_WHITESPACE | doctest.ELLIPSIS)
+    assert result.failed == 0, f"{result.failed} docstring example(s) failed in {module_name}"
