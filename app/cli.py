@@ -1,0 +1,277 @@
+"""The `gainboard` command line.
+
+A contract for scripts and CI jobs: command names, options and JSON keys are
+kept stable (see the README). Exit codes: 0 success (and every given spec met),
+1 a given spec failed, 2 bad input or an impossible request — with one line on
+stderr and never a traceback.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import math
+import sys
+from pathlib import Path
+
+import numpy as np
+
+from gainboard import core
+
+from . import cli_output
+
+#: Options whose value may start with '-' (negative poles, gains, states).
+_VALUE_OPTIONS = ("--poles", "--gain", "--x0", "--entry", "--range")
+
+
+class UsageError(Exception):
+    """Bad command-line input; reported on one line with exit code 2."""
+
+
+# -- parsing helpers ---------------------------------------------------------------------------
+
+
+def _join_negative_values(argv: list[str]) -> list[str]:
+    """Let ``--poles -2+4j,-2-4j`` through: argparse would read the value as an option."""
+    joined, index = [], 0
+    while index < len(argv):
+        token = argv[index]
+        if token in _VALUE_OPTIONS and index + 1 < len(argv):
+            joined.append(f"{token}={argv[index + 1]}")
+            index += 2
+        else:
+            joined.append(token)
+            index += 1
+    return joined
+
+
+def resolve_plant(reference: str) -> core.Plant:
+    """Load a plant from a file path or the stem of a bundled plant (e.g. ``cart_pendulum``)."""
+    path = Path(reference)
+    if path.exists() or path.suffix == ".toml" or "/" in reference:
+        return core.load_plant_file(path)
+    from gainboard.sample_plants import bundled_plant_files
+
+    bundled = bundled_plant_files()
+    if reference in bundled:
+        return core.load_plant_file(bundled[reference])
+    raise UsageError(
+        f"no plant file {reference!r} and no bundled plant of that name; bundled plants: {', '.join(sorted(bundled))}"
+    )
+
+
+def parse_poles(text: str) -> list[complex]:
+    """Parse ``"-2+4j,-2-4j,-10"`` (``i`` accepted for ``j``) into complex numbers."""
+    poles = []
+    for piece in text.replace(" ", "").split(","):
+        if not piece:
+            continue
+        try:
+            poles.append(complex(piece.replace("i", "j")))
+        except ValueError:
+            raise UsageError(f"cannot read pole {piece!r}; write poles like -2+4j,-2-4j,-10") from None
+    if not poles:
+        raise UsageError("no poles given; write them like --poles \"-2+4j,-2-4j,-10\"")
+    return poles
+
+
+def parse_gain(text: str, plant: core.Plant) -> np.ndarray:
+    """Read K from a JSON file ``{"K": [[...]]}`` or an inline JSON array of rows."""
+    source = text
+    if not text.lstrip().startswith(("[", "{")):
+        path = Path(text)
+        try:
+            text = path.read_text(encoding="utf-8")
+        except OSError as error:
+            raise UsageError(f"cannot read gain file {source!r}: {error.strerror or error}") from None
+    try:
+        data = json.loads(text)
+    except json.JSONDecodeError as error:
+        raise UsageError(f"the gain {source!r} is not valid JSON ({error.msg}); give [[k11, k12, ...]] or a file with {{\"K\": ...}}") from None
+    if isinstance(data, dict):
+        if "K" not in data:
+            raise UsageError(f"the gain file {source!r} has no key \"K\"; expected {{\"K\": [[...]]}}")
+        data = data["K"]
+    if not isinstance(data, list) or any(isinstance(v, (bool, str)) for v in np.ravel(np.array(data, dtype=object))):
+        raise UsageError(f"the gain must be a list of rows of numbers such as [[199, 55, 8]], got {data!r}")
+    return plant.check_gain(data)
+
+
+def parse_vector(text: str, length: int, what: str) -> np.ndarray:
+    """Parse a comma-separated or JSON list of ``length`` numbers."""
+    cleaned = text.strip().strip("[]")
+    try:
+        values = [float(v) for v in cleaned.split(",") if v.strip()]
+    except ValueError:
+        raise UsageError(f"{what} must be {length} numbers separated by commas, got {text!r}") from None
+    if len(values) != length or not all(math.isfinite(v) for v in values):
+        raise UsageError(f"{what} must be {length} finite numbers (one per state), got {len(values)}: {text!r}")
+    return np.array(values)
+
+
+def parse_entry(text: str, plant: core.Plant) -> tuple[int, int]:
+    """Parse ``ROW,COL`` counted from 1 (as in k_ij) into zero-based indices, checked against K's shape."""
+    try:
+        row, col = (int(v) for v in text.split(","))
+    except ValueError:
+        raise UsageError(f"--entry must be ROW,COL counted from 1 such as 1,2; got {text!r}") from None
+    m, n = plant.input_count, plant.state_count
+    if not (1 <= row <= m and 1 <= col <= n):
+        raise UsageError(f"entry {row},{col} is outside K, which is {m}×{n} (rows 1..{m}, columns 1..{n})")
+    return row - 1, col - 1
+
+
+def parse_range(text: str) -> tuple[float, float]:
+    """Parse ``LOW,HIGH`` into a sweep range."""
+    try:
+        low, high = (float(v) for v in text.split(","))
+    except ValueError:
+        raise UsageError(f"--range must be LOW,HIGH such as -10,50; got {text!r}") from None
+    if not (math.isfinite(low) and math.isfinite(high) and low < high):
+        raise UsageError(f"--range needs finite LOW < HIGH, got {text!r}")
+    return low, high
+
+
+# -- commands ----------------------------------------------------------------------------------
+
+
+def command_assign(args) -> int:
+    plant = resolve_plant(args.plant)
+    result = core.assign_poles(plant, parse_poles(args.poles))
+    cli_output.emit(cli_output.assignment_record(plant, result), args.json, cli_output.assignment_table)
+    return 0
+
+
+def command_evaluate(args) -> int:
+    plant = resolve_plant(args.plant)
+    gain = parse_gain(args.gain, plant)
+    specs = core.load_specs_file(args.specs) if args.specs else plant.specs
+    x0 = parse_vector(args.x0, plant.state_count, "--x0") if args.x0 else None
+    if args.horizon is not None and not (math.isfinite(args.horizon) and args.horizon > 0):
+        raise UsageError(f"--horizon must be a positive number of seconds, got {args.horizon}")
+    options = core.EvaluationOptions(
+        selected_entry=None,
+        initial_state=x0,
+        horizon=args.horizon,
+        specs=specs,
+        include_all_entry_intervals=False,
+    )
+    evaluation = core.evaluate_design(plant, gain, options)
+    record = cli_output.evaluation_record(evaluation, specs_given=specs is not None)
+    cli_output.emit(record, args.json, cli_output.evaluation_table)
+    spec_report = evaluation.spec_report
+    return 1 if spec_report is not None and not spec_report.all_passed else 0
+
+
+def command_sweep(args) -> int:
+    plant = resolve_plant(args.plant)
+    gain = parse_gain(args.gain, plant)
+    row, col = parse_entry(args.entry, plant)
+    intervals = core.entry_stable_intervals(plant, gain, row, col)
+    low, high = parse_range(args.range) if args.range else core.default_entry_range(plant, gain, row, col)
+    locus = core.entry_locus(plant, gain, row, col, low, high)
+    record = cli_output.sweep_record(plant, gain, (row, col), intervals, locus)
+    cli_output.emit(record, args.json, cli_output.sweep_table)
+    return 0
+
+
+def command_plants(args) -> int:
+    from gainboard.sample_plants import bundled_plant_files
+
+    records = []
+    for stem, path in sorted(bundled_plant_files().items()):
+        plant = core.load_plant_file(path)
+        records.append(
+            {
+                "name": stem,
+                "title": plant.name,
+                "summary": plant.summary,
+                "states": plant.state_count,
+                "inputs": plant.input_count,
+                "sampled": plant.is_sampled,
+                "path": str(path),
+            }
+        )
+    cli_output.emit({"plants": records}, args.json, cli_output.plants_table)
+    return 0
+
+
+def command_serve(args) -> int:
+    from .server import serve_workbench
+
+    if args.plant is not None:
+        resolve_plant(args.plant)  # refuse a broken plant before starting a server
+    serve_workbench(args.plant, address=args.address, port=args.port, show=not args.no_show)
+    return 0
+
+
+class _OneLineErrorParser(argparse.ArgumentParser):
+    """Report usage mistakes on one line (the command-line contract), not argparse's usage block."""
+
+    def error(self, message):
+        print(f"{self.prog}: {message} (see `{self.prog} --help`)", file=sys.stderr)
+        raise SystemExit(2)
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = _OneLineErrorParser(
+        prog="gainboard",
+        description="Design state-feedback gains K (u = -Kx) of linear plants. "
+        "Designs from linear models must be validated on the real system with safe limits.",
+    )
+    commands = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
+
+    plant_help = "plant file (TOML) or the name of a bundled plant (see `gainboard plants`)"
+    gain_help = 'K as an inline JSON array of rows such as "[[199, 55, 8]]", or a JSON file {"K": [[...]]}'
+
+    assign = commands.add_parser("assign", help="compute K that places the closed-loop poles at targets")
+    assign.add_argument("plant", help=plant_help)
+    assign.add_argument("--poles", required=True, help='target poles, e.g. "-2+4j,-2-4j,-10" (z values for sampled plants)')
+    assign.add_argument("--json", action="store_true", help="print JSON instead of a table")
+    assign.set_defaults(handler=command_assign)
+
+    evaluate = commands.add_parser("evaluate", help="poles, responses, margins and spec checks of a given K")
+    evaluate.add_argument("plant", help=plant_help)
+    evaluate.add_argument("--gain", required=True, help=gain_help)
+    evaluate.add_argument("--x0", help="initial state for the regulation response, e.g. 0.1,0,0 (default: the plant file's)")
+    evaluate.add_argument("--specs", help="spec file (TOML) to check against (default: the plant file's [specs])")
+    evaluate.add_argument("--horizon", type=float, help="simulation length in seconds (default: from the slowest pole)")
+    evaluate.add_argument("--json", action="store_true", help="print JSON instead of a table")
+    evaluate.set_defaults(handler=command_evaluate)
+
+    sweep = commands.add_parser("sweep", help="exact stable range and pole locus of one gain entry k_ij")
+    sweep.add_argument("plant", help=plant_help)
+    sweep.add_argument("--gain", required=True, help=gain_help)
+    sweep.add_argument("--entry", required=True, help="ROW,COL of the entry, counted from 1 as in k_ij")
+    sweep.add_argument("--range", help="LOW,HIGH of the locus sweep (default: around the current value)")
+    sweep.add_argument("--json", action="store_true", help="print JSON instead of a table")
+    sweep.set_defaults(handler=command_sweep)
+
+    plants = commands.add_parser("plants", help="list the bundled sample plants")
+    plants.add_argument("--json", action="store_true", help="print JSON instead of a table")
+    plants.set_defaults(handler=command_plants)
+
+    serve = commands.add_parser("serve", help="open the workbench in the browser")
+    serve.add_argument("plant", nargs="?", help=plant_help + " (default: a bundled plant)")
+    serve.add_argument("--address", default="127.0.0.1", help="address to listen on (default: loopback only)")
+    serve.add_argument("--port", type=int, default=0, help="port to listen on (default: a free port)")
+    serve.add_argument("--no-show", action="store_true", help="do not open a browser tab")
+    serve.set_defaults(handler=command_serve)
+    return parser
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Entry point of the ``gainboard`` console script."""
+    argv = _join_negative_values(list(sys.argv[1:] if argv is None else argv))
+    args = build_parser().parse_args(argv)
+    try:
+        return args.handler(args)
+    except (UsageError, core.GainboardError) as error:
+        print(f"gainboard {args.command}: {error}", file=sys.stderr)
+        return 2
+    except KeyboardInterrupt:
+        return 130
+
+
+if __name__ == "__main__":  # pragma: no cover - exercised through the console script
+    sys.exit(main())

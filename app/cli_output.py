@@ -1,0 +1,167 @@
+"""Turning core results into the command line's JSON records and readable tables.
+
+The JSON keys are a contract (README, "Command line"); the tables are for people.
+Complex numbers are written as ``[re, im]``; infinite or undefined numbers as ``null``.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import sys
+
+import numpy as np
+
+
+def json_value(value):
+    """Convert numpy arrays, complex numbers and non-finite floats into plain JSON values."""
+    if isinstance(value, dict):
+        return {str(key): json_value(item) for key, item in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [json_value(item) for item in value]
+    if isinstance(value, np.ndarray):
+        return [json_value(item) for item in value.tolist()]
+    if isinstance(value, (bool, np.bool_)):
+        return bool(value)
+    if isinstance(value, (complex, np.complexfloating)):
+        return [json_value(float(value.real)), json_value(float(value.imag))]
+    if isinstance(value, (float, np.floating)):
+        value = float(value)
+        return value if math.isfinite(value) else None
+    if isinstance(value, np.integer):
+        return int(value)
+    return value
+
+
+def complex_pairs(values) -> list:
+    """Poles as ``[[re, im], ...]``."""
+    return [json_value(complex(v)) for v in np.ravel(values)]
+
+
+def emit(record: dict, as_json: bool, table) -> None:
+    """Print ``record`` as JSON, or as the readable table made by ``table(record)``."""
+    if as_json:
+        json.dump(json_value(record), sys.stdout, indent=2, allow_nan=False)
+        sys.stdout.write("\n")
+    else:
+        sys.stdout.write(table(json_value(record)))
+
+
+def format_number(value, digits: int = 6) -> str:
+    """A number for a table: ``inf``/``-inf`` for unbounded ends, ``—`` for undefined."""
+    if value is None:
+        return "—"
+    if isinstance(value, (list, tuple)) and len(value) == 2:
+        return format_complex(value)
+    return f"{value:.{digits}g}"
+
+
+def format_complex(pair, digits: int = 6) -> str:
+    re, im = pair
+    if im == 0:
+        return f"{re:.{digits}g}"
+    sign = "+" if im > 0 else "-"
+    return f"{re:.{digits}g} {sign} {abs(im):.{digits}g}j"
+
+
+def format_interval(interval) -> str:
+    low, high = interval
+    low_text = "-inf" if low is None else format_number(low)
+    high_text = "inf" if high is None else format_number(high)
+    return f"({low_text}, {high_text})"
+
+
+def matrix_rows(matrix) -> str:
+    return "\n".join("  [" + ", ".join(format_number(v, 8) for v in row) + "]" for row in matrix)
+
+
+# -- assign ------------------------------------------------------------------------------------
+
+
+def assignment_record(plant, result) -> dict:
+    return {
+        "plant": plant.name,
+        "sampled": plant.is_sampled,
+        "sample_time": plant.sample_time,
+        "K": result.gain,
+        "poles": complex_pairs(result.achieved),
+        "requested": complex_pairs(result.requested),
+        "worst_error": result.worst_error,
+        "method": result.method,
+        "note": result.note,
+        "state_order": list(plant.state_names),
+        "input_order": list(plant.input_names),
+    }
+
+
+def assignment_table(record: dict) -> str:
+    lines = [
+        f"Plant: {record['plant']}" + (f" (sampled, T = {record['sample_time']} s)" if record["sampled"] else ""),
+        f"Method: {record['method']}",
+    ]
+    if record["note"]:
+        lines.append(f"Note: {record['note']}")
+    lines.append("K (rows: " + ", ".join(record["input_order"]) + "; columns: " + ", ".join(record["state_order"]) + "):")
+    lines.append(matrix_rows(record["K"]))
+    lines.append(f"{'requested pole':>26}  {'achieved pole':>26}")
+    for requested, achieved in zip(record["requested"], record["poles"]):
+        lines.append(f"{format_complex(requested):>26}  {format_complex(achieved):>26}")
+    lines.append(f"Worst placement error: {format_number(record['worst_error'], 3)}")
+    return "\n".join(lines) + "\n"
+
+
+# -- sweep -------------------------------------------------------------------------------------
+
+
+def sweep_record(plant, gain, entry, intervals, locus) -> dict:
+    row, col = entry
+    return {
+        "plant": plant.name,
+        "entry": [row + 1, col + 1],
+        "entry_label": f"k{row + 1}{col + 1}: {plant.input_names[row]} from {plant.state_names[col]}",
+        "current_value": float(gain[row, col]),
+        "current_is_stable": intervals.current_is_stable,
+        "stable_intervals": [[low, high] for low, high in intervals.intervals],
+        "crossings": [
+            {"gain": crossing.gain, "point": json_value(complex(crossing.point))} for crossing in intervals.crossings
+        ],
+        "never_stable_reason": intervals.never_stable_reason,
+        "locus": {
+            "gains": locus.gains,
+            "poles": [complex_pairs(row_of_poles) for row_of_poles in locus.poles],
+            "start_poles": complex_pairs(locus.start_poles),
+            "end_poles": complex_pairs(locus.end_poles),
+        },
+    }
+
+
+def sweep_table(record: dict) -> str:
+    lines = [
+        f"Plant: {record['plant']}",
+        f"Entry {record['entry_label']} (current value {format_number(record['current_value'])}, "
+        + ("stable" if record["current_is_stable"] else "NOT stable")
+        + ")",
+    ]
+    if record["stable_intervals"]:
+        lines.append("Stable for values in: " + " ∪ ".join(format_interval(i) for i in record["stable_intervals"]))
+    else:
+        lines.append("Stable for no value of this entry. " + (record["never_stable_reason"] or ""))
+    if record["crossings"]:
+        lines.append("Boundary crossings (value: pole on the boundary):")
+        for crossing in record["crossings"]:
+            lines.append(f"  {format_number(crossing['gain'])}: {format_complex(crossing['point'])}")
+    locus = record["locus"]
+    lines.append(f"Locus from {format_number(locus['gains'][0])} to {format_number(locus['gains'][-1])} "
+                 f"({len(locus['gains'])} points); use --json for the points.")
+    return "\n".join(lines) + "\n"
+
+
+# -- plants ------------------------------------------------------------------------------------
+
+
+def plants_table(record: dict) -> str:
+    lines = []
+    for plant in record["plants"]:
+        kind = "sampled" if plant["sampled"] else "continuous"
+        lines.append(f"{plant['name']:<24} {plant['states']} states, {plant['inputs']} input(s), {kind}: {plant['summary']}")
+    return "\n".join(lines) + "\n"
