@@ -1,3 +1,1047 @@
-"""(in progress)"""
+"""One gain entry at a time: exact stable intervals, adaptive loci, pole sensitivities.
 
-__all__ = []
+With every other entry of K held fixed, the gain entry k_ij (row i = input,
+column j = state, both zero-based) changes the closed-loop matrix by a rank-one
+term::
+
+    A − B·K(v) = A_z − v·b·e_jᵀ,    A_z = A − B·K₀ with entry (i, j) set to zero,  b = B[:, i],
+
+so det(sI − A + B·K(v)) = p₀(s) + v·q(s) and the closed-loop poles are the roots
+of 1 + v·g(s) with the single-input single-output transfer function
+g(s) = e_jᵀ(sI − A_z)⁻¹b. The same holds for a sampled plant in z.
+
+The stable set of v is a union of open intervals whose ends are the *exact*
+values of v at which a pole lies on the stability boundary (the imaginary axis,
+or the unit circle for a sampled plant). Those values come from a structured
+eigenvalue problem of size O(n) (see ``_single_entry_family``), are polished by
+Newton's method and verified, and every interval between them is classified by
+the poles at an interior point.
+
+Safety: every interval here is computed from the linear model. The real loop
+has unmodelled dynamics, delays, saturation and noise, and a gain inside a
+stable interval can still be unsafe on the machine. Validate every design on the
+real system with safe limits and a working emergency stop, under local codes,
+functional-safety standards and licensed engineering practice.
+"""
+
+from __future__ import annotations
+
+import math
+import numbers
+from dataclasses import dataclass
+
+import numpy as np
+import scipy.linalg
+
+from ._errors import GainError
+from ._plant import Plant
+from ._single_entry_family import (
+    BoundaryPoint,
+    RankOneFamily,
+    boundary_distance,
+    boundary_is_everywhere,
+    boundary_points,
+    family_from_reduction,
+    gain_tolerance,
+    margin_tolerance,
+    rank_one_family,
+    reduce_input,
+    unstable_count,
+)
+from ._single_entry_sampler import adaptive_locus
+
+__all__ = [
+    "EntryPolynomials",
+    "entry_polynomials",
+    "Crossing",
+    "StableIntervals",
+    "entry_stable_intervals",
+    "all_entry_stable_intervals",
+    "EntryLocus",
+    "entry_locus",
+    "ScaledGainLocus",
+    "scaled_gain_locus",
+    "PoleSensitivity",
+    "pole_sensitivity",
+    "default_entry_range",
+]
+
+_EPS = np.finfo(float).eps
+
+
+# ---------------------------------------------------------------------------
+# Argument checks
+# ---------------------------------------------------------------------------
+def _check_index(value, count: int, what: str, names: tuple[str, ...]) -> int:
+    if isinstance(value, bool) or not isinstance(value, numbers.Integral):
+        raise GainError(f"the {what} index must be a whole number from 0 to {count - 1}, but {value!r} was given")
+    index = int(value)
+    if not 0 <= index < count:
+        plural = "s" if count != 1 else ""
+        listing = ", ".join(f"{k} = '{name}'" for k, name in enumerate(names))
+        raise GainError(
+            f"{what} {index} is out of range: K has {count} {what}{plural} ({listing}); "
+            f"use a zero-based {what} index from 0 to {count - 1}"
+        )
+    return index
+
+
+def _checked_entry(plant: Plant, K, row, col) -> tuple[np.ndarray, int, int]:
+    if not isinstance(plant, Plant):
+        raise GainError(f"the plant must be a gainboard Plant, but {type(plant).__name__} was given")
+    gain = plant.check_gain(K)
+    row = _check_index(row, plant.input_count, "row", plant.input_names)
+    col = _check_index(col, plant.state_count, "column", plant.state_names)
+    return gain, row, col
+
+
+def _checked_range(low, high, what: str) -> tuple[float, float]:
+    try:
+        low_value, high_value = float(low), float(high)
+    except (TypeError, ValueError):
+        raise GainError(f"the {what} range needs two numbers (low, high), got {low!r} and {high!r}") from None
+    if not (math.isfinite(low_value) and math.isfinite(high_value)):
+        raise GainError(f"the {what} range must have finite ends, got ({low_value}, {high_value})")
+    if not low_value < high_value:
+        raise GainError(
+            f"the {what} range is empty: low = {low_value:g} must be smaller than high = {high_value:g}"
+        )
+    return low_value, high_value
+
+
+def _entry_label(plant: Plant, row: int, col: int) -> str:
+    return f"K[{row}, {col}] (input '{plant.input_names[row]}', state '{plant.state_names[col]}')"
+
+
+def _format_pole(pole: complex) -> str:
+    pole = complex(pole)
+    if pole.imag == 0.0:
+        return f"{pole.real:.6g}"
+    return f"{pole.real:.6g}{pole.imag:+.6g}j"
+
+
+def _entry_family(plant: Plant, gain: np.ndarray, row: int, col: int, reduction=None) -> RankOneFamily:
+    closed_loop = plant.A - plant.B @ gain
+    output = np.zeros(plant.state_count)
+    output[col] = 1.0
+    if reduction is None:
+        reduction = reduce_input(closed_loop, plant.B[:, row])
+    return family_from_reduction(reduction, closed_loop, output, float(gain[row, col]), plant.is_sampled)
+
+
+# ---------------------------------------------------------------------------
+# Polynomials (display and tests only)
+# ---------------------------------------------------------------------------
+@dataclass(frozen=True, eq=False)
+class EntryPolynomials:
+    """det(λI − A + B·K(v)) = base(λ) + v·direction(λ) for the entry K[row, col] = v.
+
+    Attributes
+    ----------
+    entry : (int, int)
+        (row, col), zero-based.
+    base : numpy.ndarray, shape (n + 1,)
+        Coefficients of p₀ = det(λI − A_z), highest power first (monic).
+    direction : numpy.ndarray, shape (n + 1,)
+        Coefficients of q = e_jᵀ adj(λI − A_z) b, highest power first (leading entry 0).
+    variable : str
+        ``"s"`` (continuous) or ``"z"`` (sampled).
+    current_value : float
+        The entry's value in the given K.
+
+    Monomial coefficients are badly conditioned for n ≳ 10; they are for display
+    and cross-checks only and are never used to find roots here.
+    """
+
+    entry: tuple[int, int]
+    base: np.ndarray
+    direction: np.ndarray
+    variable: str
+    current_value: float
+
+
+def entry_polynomials(plant: Plant, K, row: int, col: int) -> EntryPolynomials:
+    """Characteristic polynomial of the loop as an affine function of one gain entry.
+
+    Parameters
+    ----------
+    plant : Plant
+        The plant (continuous or sampled).
+    K : array_like, shape (m, n)
+        The state-feedback gain (u = −Kx).
+    row, col : int
+        Zero-based entry: row = input, col = state.
+
+    Returns
+    -------
+    EntryPolynomials
+
+    Examples
+    --------
+    >>> plant = Plant(A=[[0.0, 1.0], [0.0, 0.0]], B=[[0.0], [1.0]])
+    >>> polys = entry_polynomials(plant, [[2.0, 3.0]], 0, 0)
+    >>> np.round(polys.base, 12).tolist(), np.round(polys.direction, 12).tolist()
+    ([1.0, 3.0, 0.0], [0.0, 0.0, 1.0])
+    """
+    gain, row, col = _checked_entry(plant, K, row, col)
+    zeroed = gain.copy()
+    zeroed[row, col] = 0.0
+    a_z = plant.A - plant.B @ zeroed
+    b = plant.B[:, row]
+    c = np.zeros(plant.state_count)
+    c[col] = 1.0
+    base = np.real(np.poly(a_z))
+    # det is affine in v (rank-one change), so q = (det at v = σ − det at v = 0)/σ exactly;
+    # σ of the size of A_z keeps both characteristic polynomials on one scale.
+    size = float(np.linalg.norm(a_z)) or 1.0
+    b_size = float(np.linalg.norm(b))
+    if b_size == 0.0:
+        direction = np.zeros_like(base)
+    else:
+        sigma = size / b_size
+        direction = (np.real(np.poly(a_z - sigma * np.outer(b, c))) - base) / sigma
+    direction[0] = 0.0  # q has degree ≤ n − 1: the leading term cancels exactly
+    base.setflags(write=False)
+    direction.setflags(write=False)
+    return EntryPolynomials((row, col), base, direction, "z" if plant.is_sampled else "s", float(gain[row, col]))
+
+
+# ---------------------------------------------------------------------------
+# Exact stable intervals
+# ---------------------------------------------------------------------------
+@dataclass(frozen=True)
+class Crossing:
+    """A value of the gain entry at which a closed-loop pole lies on the stability boundary.
+
+    Attributes
+    ----------
+    gain : float
+        The entry's value.
+    frequency : float
+        Continuous plants: ω ≥ 0 in rad/s (the pole is ±jω). Sampled plants: the
+        angle θ in [0, π] rad of the pole e^{±jθ} on the unit circle.
+    point : complex
+        The boundary pole (the one with non-negative imaginary part).
+    unstable_below, unstable_above : int
+        Poles on or past the boundary just below and just above ``gain``
+        (equal counts: the pole only touches the boundary).
+    condition : float
+        Eigenvalue condition number of the boundary pole (1 = perfectly conditioned).
+    gain_uncertainty : float
+        First-order estimate of the error in ``gain`` caused by rounding
+        (inf where the pole touches the boundary without crossing it).
+    ill_conditioned : bool
+        True when ``gain_uncertainty`` exceeds 1e-6 of the gain's size.
+    exact : bool
+        True when the gain comes from the structured eigenvalue problem; False for
+        a change of stability that was located by bisection instead (a safety net
+        for degenerate models; ``condition`` is then NaN).
+    """
+
+    gain: float
+    frequency: float
+    point: complex
+    unstable_below: int
+    unstable_above: int
+    condition: float
+    gain_uncertainty: float
+    ill_conditioned: bool
+    exact: bool = True
+
+    @property
+    def touches_only(self) -> bool:
+        """True when the number of unstable poles is the same on both sides."""
+        return self.unstable_below == self.unstable_above
+
+
+@dataclass(frozen=True)
+class StableIntervals:
+    """Exact set of values of one gain entry (others fixed) that give a stable loop.
+
+    Attributes
+    ----------
+    entry : (int, int)
+        (row, col), zero-based.
+    intervals : tuple of (float, float)
+        Sorted open intervals (low, high); ``-inf``/``inf`` mark unbounded ends.
+        Empty when no value of the entry stabilises the loop.
+    crossings : tuple of Crossing
+        Every value at which a pole is on the boundary, sorted by gain.
+    current_value : float
+        The entry's value in the given K.
+    current_is_stable : bool
+        Whether the given K gives a stable loop.
+    never_stable_reason : str
+        Why no value works (empty when ``intervals`` is not empty).
+    pieces : tuple of (float, float, int)
+        The whole real line cut at the crossing gains, each piece with its number
+        of poles on or past the boundary (0 = stable). Empty when the entry only
+        moves poles in mirror pairs (then every boundary point is on the locus).
+    fixed_poles : tuple of complex
+        Poles that this entry cannot move (not reached from the input, or not seen
+        through the state).
+    entry_has_effect : bool
+        False when changing the entry moves no pole at all.
+    sampled : bool
+        True for a sampled plant (boundary = unit circle).
+    gain_tolerance : float
+        Crossing gains closer than this are treated as one.
+    warnings : tuple of str
+        Conditioning notes (ill-conditioned or touching crossings).
+    """
+
+    entry: tuple[int, int]
+    intervals: tuple[tuple[float, float], ...]
+    crossings: tuple[Crossing, ...]
+    current_value: float
+    current_is_stable: bool
+    never_stable_reason: str
+    pieces: tuple[tuple[float, float, int], ...]
+    fixed_poles: tuple[complex, ...]
+    entry_has_effect: bool
+    sampled: bool
+    gain_tolerance: float
+    warnings: tuple[str, ...]
+
+    def contains(self, value: float) -> bool:
+        """True when ``value`` lies inside one of the (open) stable intervals."""
+        return any(low < value < high for low, high in self.intervals)
+
+
+def _poles_and_counts(family: RankOneFamily, values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Poles (len(values), n) and the number on or past the boundary at each value."""
+    values = np.atleast_1d(np.asarray(values, dtype=float))
+    o = family.order
+    counts = np.zeros(values.size, dtype=int)
+    if o:
+        matrices = family.moving_closed_loop(values)
+        moving = np.linalg.eigvals(matrices)
+        tolerances = np.array([margin_tolerance(float(norm), o) for norm in np.linalg.norm(matrices, axis=(1, 2))])
+        counts += np.count_nonzero(boundary_distance(moving, family.sampled) >= -tolerances[:, None], axis=1)
+    else:
+        moving = np.zeros((values.size, 0), dtype=complex)
+    fixed = np.broadcast_to(family.fixed_poles, (values.size, family.fixed_poles.size))
+    poles = np.concatenate([moving.astype(complex), fixed], axis=1)
+    if family.fixed_poles.size:
+        fixed_tolerance = margin_tolerance(family.full_norm, family.state_count)
+        counts += int(np.count_nonzero(boundary_distance(family.fixed_poles, family.sampled) >= -fixed_tolerance))
+    return poles, counts
+
+
+def _merge_gains(family: RankOneFamily, values) -> list[float]:
+    merged: list[float] = []
+    for value in sorted(values):
+        if not merged or value - merged[-1] > gain_tolerance(family, value):
+            merged.append(float(value))
+    return merged
+
+
+def _piece_probes(edges: list[float], reach: float, current: float) -> list[tuple[list[float], int]]:
+    """Probe values inside each piece and the index of the representative one.
+
+    Three probes per piece (five for the whole line): the status of a piece is read
+    at the representative probe; the others only check that it does not change
+    inside the piece, which would reveal a crossing that the exact method missed.
+    """
+    probes = []
+    for low, high in zip(edges[:-1], edges[1:]):
+        if math.isinf(low) and math.isinf(high):
+            probes.append(([current - 10 * reach, current - reach, current, current + reach, current + 10 * reach], 2))
+        elif math.isinf(low):
+            probes.append(([high - 10 * reach, high - reach, high - 0.1 * reach], 1))
+        elif math.isinf(high):
+            probes.append(([low + 0.1 * reach, low + reach, low + 10 * reach], 1))
+        else:
+            width = high - low
+            probes.append(([low + 0.1 * width, low + 0.5 * width, high - 0.1 * width], 1))
+    return probes
+
+
+def _piece_reach(family: RankOneFamily, gains: list[float]) -> float:
+    if gains:
+        return max(family.gain_scale, gains[-1] - gains[0], 0.1 * max(abs(gains[0]), abs(gains[-1])))
+    return max(family.gain_scale, abs(family.current_value))
+
+
+def _expected_change(family: RankOneFamily, points: list[BoundaryPoint], gain: float) -> int | None:
+    """Change of the unstable count across ``gain`` predicted by the crossing directions.
+
+    A well-conditioned crossing moves one real pole (at s = 0 or z = ±1) or a
+    conjugate pair across the boundary, outward when the boundary speed is positive.
+    None when some crossing there is ill-conditioned or only touches.
+    """
+    change = 0
+    tolerance = gain_tolerance(family, gain)
+    for point in points:
+        if abs(point.gain - gain) > tolerance:
+            continue
+        if not point.exact or not point.gain_uncertainty <= 1e-6 * max(abs(gain), family.gain_scale):
+            return None
+        change += (1 if point.point.imag == 0.0 else 2) * (1 if point.speed > 0 else -1)
+    return change
+
+
+def _classify_pieces(family: RankOneFamily, exact_points: list[BoundaryPoint]):
+    """Unstable count of every piece between crossing gains, with a safety net.
+
+    Returns (gains, counts per piece, current value stable?, crossings located by
+    bisection). The count of each piece is read at one interior point. Two cheap
+    checks follow: across every well-conditioned crossing the count must change as
+    the crossing directions predict, and the unbounded end pieces must keep their
+    count far out. If either fails, a crossing was missed (a degenerate or badly
+    conditioned model): every piece is then probed at three points and each change
+    of count inside a piece is located by bisection and reported as such, never
+    silently skipped.
+    """
+    v0 = family.current_value
+    gains = _merge_gains(family, [p.gain for p in exact_points])
+    reach = _piece_reach(family, gains)
+    if gains:
+        representatives = [gains[0] - reach] + [0.5 * (a + b) for a, b in zip(gains[:-1], gains[1:])] + [gains[-1] + reach]
+        far = [gains[0] - 10 * reach, gains[-1] + 10 * reach]
+    else:
+        representatives = [v0]
+        far = [v0 - 10 * reach, v0 - reach, v0 + reach, v0 + 10 * reach]
+    _, quick = _poles_and_counts(family, np.array([v0] + representatives + far))
+    counts = [int(c) for c in quick[1 : 1 + len(representatives)]]
+    far_counts = quick[1 + len(representatives) :]
+    consistent = (
+        all(c == counts[0] for c in far_counts) if not gains
+        else far_counts[0] == counts[0] and far_counts[1] == counts[-1]
+    )
+    for k, gain in enumerate(gains):
+        expected = _expected_change(family, exact_points, gain)
+        if expected is not None and counts[k + 1] - counts[k] != expected:
+            consistent = False
+    if consistent:
+        return gains, counts, bool(quick[0] == 0), []
+
+    located: list[BoundaryPoint] = []
+    for _ in range(4):
+        reach = _piece_reach(family, gains)
+        edges = [-math.inf] + gains + [math.inf]
+        probes = _piece_probes(edges, reach, v0)
+        values = [v0] + [v for piece_values, _ in probes for v in piece_values]
+        _, all_counts = _poles_and_counts(family, np.array(values))
+        current_is_stable = bool(all_counts[0] == 0)
+        position = 1
+        counts = []
+        missed = []
+        for piece_values, representative in probes:
+            piece_counts = all_counts[position : position + len(piece_values)]
+            position += len(piece_values)
+            counts.append(int(piece_counts[representative]))
+            for k in range(len(piece_values) - 1):
+                if piece_counts[k] != piece_counts[k + 1]:
+                    missed.append(_bisect_count_change(family, piece_values[k], piece_values[k + 1], int(piece_counts[k])))
+        if not missed:
+            return gains, counts, current_is_stable, located
+        located.extend(missed)
+        gains = _merge_gains(family, gains + [p.gain for p in missed])
+    return gains, counts, current_is_stable, located
+
+
+def _bisect_count_change(family: RankOneFamily, low: float, high: float, low_count: int) -> BoundaryPoint:
+    """Locate, by bisection, a value where the number of unstable poles changes."""
+    while high - low > gain_tolerance(family, high):
+        middle = 0.5 * (low + high)
+        if _poles_and_counts(family, np.array([middle]))[1][0] == low_count:
+            low = middle
+        else:
+            high = middle
+    gain = 0.5 * (low + high)
+    poles = family.poles(np.array([gain]))[0]
+    nearest = complex(poles[int(np.argmin(np.abs(boundary_distance(poles, family.sampled))))])
+    if family.sampled:
+        parameter = abs(math.atan2(nearest.imag, nearest.real))
+        point = complex(math.cos(parameter), math.sin(parameter))
+    else:
+        parameter = abs(nearest.imag)
+        point = complex(0.0, parameter)
+    return BoundaryPoint(gain, point, parameter, math.nan, math.nan, high - low, math.nan, exact=False)
+
+
+def _fixed_unstable(family: RankOneFamily) -> list[complex]:
+    tolerance = margin_tolerance(family.full_norm, family.state_count)
+    return [complex(p) for p in family.fixed_poles if boundary_distance(p, family.sampled) >= -tolerance]
+
+
+def _fixed_pole_reason(plant: Plant, family: RankOneFamily, row: int, col: int, label: str) -> str:
+    bad = _fixed_unstable(family)
+    if not bad:
+        return ""
+    where = "on or outside the unit circle" if family.sampled else "on or to the right of the imaginary axis"
+    unreached = {complex(p) for p in family.unreached_poles}
+    causes = []
+    if any(p in unreached for p in bad):
+        causes.append(f"input '{plant.input_names[row]}' cannot move them")
+    if any(p not in unreached for p in bad):
+        causes.append(f"they do not show up in state '{plant.state_names[col]}'")
+    listing = ", ".join(_format_pole(p) for p in bad)
+    return (
+        f"pole(s) {listing} do not move when {label} changes ({' and '.join(causes)}) and lie {where}; "
+        "no value of this entry stabilises the loop: change another entry or the plant"
+    )
+
+
+def _analyze_family(plant: Plant, family: RankOneFamily, row: int, col: int) -> StableIntervals:
+    label = _entry_label(plant, row, col)
+    return _intervals_from_family(family, (row, col), label, lambda: _fixed_pole_reason(plant, family, row, col, label))
+
+
+def _intervals_from_family(family: RankOneFamily, entry, label: str, fixed_reason) -> StableIntervals:
+    v0 = family.current_value
+    sampled = family.sampled
+    fixed = tuple(complex(p) for p in family.fixed_poles)
+    tolerance = gain_tolerance(family, v0)
+    where = "on or outside the unit circle" if sampled else "on or right of the imaginary axis"
+
+    if not family.has_effect:
+        _, current_counts = _poles_and_counts(family, np.array([v0]))
+        current_is_stable = bool(current_counts[0] == 0)
+        count = int(current_counts[0])
+        intervals = ((-math.inf, math.inf),) if count == 0 else ()
+        reason = ""
+        if not intervals:
+            reason = (
+                f"changing {label} moves no pole (the input cannot influence that state), and "
+                f"{count} pole(s) stay {where} whatever its value: change another entry or the plant"
+            )
+        return StableIntervals(entry, intervals, (), v0, current_is_stable, reason,
+                               ((-math.inf, math.inf, count),), fixed, False, sampled, tolerance, ())
+
+    if boundary_is_everywhere(family):
+        _, current_counts = _poles_and_counts(family, np.array([v0]))
+        current_is_stable = bool(current_counts[0] == 0)
+        pairs = "reciprocal pairs z and 1/z̄ about the unit circle" if sampled else \
+            "mirror-image pairs s and −s̄ about the imaginary axis"
+        reason = (
+            f"changing {label} only moves poles in {pairs}, so at every value at least one pole is {where}; "
+            "no value of this entry stabilises the loop: change another entry first"
+        )
+        return StableIntervals(entry, (), (), v0, current_is_stable, reason, (), fixed, True, sampled,
+                               tolerance, ())
+
+    points = list(boundary_points(family))
+    gains, counts, current_is_stable, located = _classify_pieces(family, points)
+    points = sorted(points + located, key=lambda p: (p.gain, p.parameter))
+    edges = [-math.inf] + gains + [math.inf]
+    pieces = tuple((edges[k], edges[k + 1], int(counts[k])) for k in range(len(counts)))
+    intervals = tuple((low, high) for low, high, count in pieces if count == 0)
+
+    crossings = []
+    warnings = []
+    for point in points:
+        # the piece boundary this crossing belongs to
+        k = int(np.argmin([abs(point.gain - g) for g in gains]))
+        uncertainty_limit = 1e-6 * max(abs(point.gain), family.gain_scale)
+        ill = not (point.gain_uncertainty <= uncertainty_limit) or not point.exact
+        crossing = Crossing(
+            gain=point.gain,
+            frequency=point.parameter,
+            point=point.point,
+            unstable_below=int(counts[k]),
+            unstable_above=int(counts[k + 1]),
+            condition=point.condition,
+            gain_uncertainty=point.gain_uncertainty,
+            ill_conditioned=ill,
+            exact=point.exact,
+        )
+        crossings.append(crossing)
+        if not point.exact:
+            warnings.append(
+                f"a change of stability at {label} = {point.gain:.9g} was missed by the exact method and "
+                f"located by bisection (to ±{point.gain_uncertainty:.3g}); the model may be close to a "
+                "degenerate case: treat that end with caution"
+            )
+        elif ill and crossing.touches_only:
+            warnings.append(
+                f"at {label} = {point.gain:.9g} a pole touches the boundary at {_format_pole(point.point)} "
+                "without crossing it: the loop is only marginally stable there, and that value is "
+                "sensitive to rounding and to model error"
+            )
+        elif ill:
+            warnings.append(
+                f"the crossing at {label} = {point.gain:.9g} (pole {_format_pole(point.point)}) is "
+                f"ill-conditioned (pole condition number {point.condition:.3g}); that end is known only "
+                f"to about ±{point.gain_uncertainty:.3g}"
+            )
+
+    reason = ""
+    if not intervals:
+        reason = fixed_reason()
+        if not reason:
+            fewest = min(counts)
+            best = [(low, high) for low, high, count in pieces if count == fewest]
+            low, high = best[0]
+            reason = (
+                f"no value of {label} makes every pole stable: at least {fewest} pole(s) stay {where} "
+                f"for every value (fewest between {low:.6g} and {high:.6g}); change another entry first"
+            )
+    return StableIntervals(entry, intervals, tuple(crossings), v0, current_is_stable, reason, pieces, fixed,
+                           True, sampled, tolerance, tuple(warnings))
+
+
+def entry_stable_intervals(plant: Plant, K, row: int, col: int) -> StableIntervals:
+    """Exact open intervals of one gain entry (others fixed) for which the loop is stable.
+
+    The ends are the values at which a pole is on the stability boundary
+    (imaginary axis, or unit circle for a sampled plant), from a structured
+    eigenvalue problem of size 2·o + 1 (o ≤ n: the part of the plant this entry
+    can move), polished by Newton's method and verified; each piece between them
+    is classified by the poles at an interior point.
+
+    Parameters
+    ----------
+    plant : Plant
+        The plant (continuous or sampled).
+    K : array_like, shape (m, n)
+        The state-feedback gain (u = −Kx).
+    row, col : int
+        Zero-based entry: row = input, col = state.
+
+    Returns
+    -------
+    StableIntervals
+
+    Raises
+    ------
+    GainError
+        If K has the wrong shape or the entry is out of range.
+
+    Notes
+    -----
+    The intervals come from the linear model: validate any design on the real
+    system with safe limits and emergency stops, under local codes, functional-safety
+    standards and licensed practice.
+
+    Examples
+    --------
+    A cubic with poles moved by the first gain (Routh–Hurwitz gives 0 < k < 6):
+
+    >>> plant = Plant(A=[[0.0, 1.0, 0.0], [0.0, 0.0, 1.0], [0.0, -2.0, -3.0]], B=[[0.0], [0.0], [1.0]])
+    >>> result = entry_stable_intervals(plant, [[1.0, 0.0, 0.0]], 0, 0)
+    >>> [(round(low, 9), round(high, 9)) for low, high in result.intervals]
+    [(0.0, 6.0)]
+    """
+    gain, row, col = _checked_entry(plant, K, row, col)
+    return _analyze_family(plant, _entry_family(plant, gain, row, col), row, col)
+
+
+def all_entry_stable_intervals(plant: Plant, K) -> dict[tuple[int, int], StableIntervals]:
+    """Stable intervals of every gain entry, sharing one Krylov reduction per input.
+
+    Parameters
+    ----------
+    plant : Plant
+    K : array_like, shape (m, n)
+
+    Returns
+    -------
+    dict
+        ``{(row, col): StableIntervals}`` for every entry, zero-based.
+    """
+    if not isinstance(plant, Plant):
+        raise GainError(f"the plant must be a gainboard Plant, but {type(plant).__name__} was given")
+    gain = plant.check_gain(K)
+    closed_loop = plant.A - plant.B @ gain
+    results = {}
+    for row in range(plant.input_count):
+        reduction = reduce_input(closed_loop, plant.B[:, row])
+        for col in range(plant.state_count):
+            family = _entry_family(plant, gain, row, col, reduction)
+            results[(row, col)] = _analyze_family(plant, family, row, col)
+    return results
+
+
+# ---------------------------------------------------------------------------
+# Loci
+# ---------------------------------------------------------------------------
+@dataclass(frozen=True, eq=False)
+class EntryLocus:
+    """Closed-loop poles as one gain entry sweeps [low, high] (adaptively sampled).
+
+    Attributes
+    ----------
+    entry : (int, int)
+    gains : numpy.ndarray, shape (N,)
+        Sorted sample values of the entry (always including low, high, the current
+        value and every crossing inside the range).
+    poles : numpy.ndarray, shape (N, n), complex
+        Poles at each sample; column k follows one branch (consecutive samples
+        matched by optimal assignment).
+    start_poles, end_poles : numpy.ndarray, shape (n,)
+        Poles at low and at high.
+    crossings : tuple of Crossing
+        Boundary crossings inside [low, high].
+    current_value : float
+    evaluation_count : int
+        Number of eigenvalue evaluations used.
+    span : float
+        Diagonal of the bounding box of all sampled poles.
+    sampled : bool
+    """
+
+    entry: tuple[int, int]
+    gains: np.ndarray
+    poles: np.ndarray
+    start_poles: np.ndarray
+    end_poles: np.ndarray
+    crossings: tuple[Crossing, ...]
+    current_value: float
+    evaluation_count: int
+    span: float
+    sampled: bool
+
+
+def _crossings_inside(analysis: StableIntervals, low: float, high: float) -> tuple[Crossing, ...]:
+    """Crossings within [low, high], allowing for rounding at the ends (a crossing at 0 may come out as −1e-17)."""
+    slack = max(analysis.gain_tolerance, 1e-12 * (high - low))
+    return tuple(c for c in analysis.crossings if low - slack <= c.gain <= high + slack)
+
+
+def _read_only(array) -> np.ndarray:
+    out = np.array(array, copy=True)
+    out.setflags(write=False)
+    return out
+
+
+def entry_locus(plant: Plant, K, row: int, col: int, low: float, high: float) -> EntryLocus:
+    """Branch-tracked locus of the closed-loop poles as K[row, col] sweeps [low, high].
+
+    Sampling is adaptive: an interval is bisected while its midpoint poles stray
+    from the straight chord by more than 4e-4 of the plot span or any pole moves
+    more than 5 % of the span across it.
+
+    Parameters
+    ----------
+    plant : Plant
+    K : array_like, shape (m, n)
+    row, col : int
+        Zero-based entry.
+    low, high : float
+        Sweep range (low < high), in the entry's units.
+
+    Returns
+    -------
+    EntryLocus
+
+    Examples
+    --------
+    >>> plant = Plant(A=[[0.0, 1.0], [0.0, 0.0]], B=[[0.0], [1.0]])
+    >>> locus = entry_locus(plant, [[1.0, 2.0]], 0, 0, 0.5, 4.0)
+    >>> sorted(np.round(locus.start_poles.real, 6).tolist())
+    [-1.707107, -0.292893]
+    """
+    gain, row, col = _checked_entry(plant, K, row, col)
+    low, high = _checked_range(low, high, f"sweep of {_entry_label(plant, row, col)}")
+    family = _entry_family(plant, gain, row, col)
+    analysis = _analyze_family(plant, family, row, col)
+    inside = _crossings_inside(analysis, low, high)
+    sampled = adaptive_locus(family.poles, low, high, [family.current_value] + [c.gain for c in inside])
+    return EntryLocus(
+        entry=(row, col),
+        gains=_read_only(sampled.values),
+        poles=_read_only(sampled.poles),
+        start_poles=_read_only(sampled.poles[0]),
+        end_poles=_read_only(sampled.poles[-1]),
+        crossings=inside,
+        current_value=family.current_value,
+        evaluation_count=sampled.evaluation_count,
+        span=sampled.span,
+        sampled=plant.is_sampled,
+    )
+
+
+@dataclass(frozen=True, eq=False)
+class ScaledGainLocus:
+    """Closed-loop poles of A − α·B·K as the scale α sweeps [low, high].
+
+    Attributes
+    ----------
+    scales : numpy.ndarray, shape (N,)
+        Sorted sample values of α (always including 1, the given K, when in range).
+    poles : numpy.ndarray, shape (N, n), complex
+        Branch-tracked poles.
+    start_poles, end_poles : numpy.ndarray, shape (n,)
+    crossings : tuple of Crossing
+        Boundary crossings inside the range (``gain`` holds α).
+    stable_intervals : tuple of (float, float)
+        Stable ranges of α over the whole real line (rank-one B·K) or inside
+        [low, high] (otherwise).
+    exact : bool
+        True when B·K has rank one (or zero) and crossings come from the exact
+        structured eigenvalue problem; False when they were located by sampling and
+        bisection (touching points can then be missed).
+    evaluation_count : int
+    span : float
+    sampled : bool
+    """
+
+    scales: np.ndarray
+    poles: np.ndarray
+    start_poles: np.ndarray
+    end_poles: np.ndarray
+    crossings: tuple[Crossing, ...]
+    stable_intervals: tuple[tuple[float, float], ...]
+    exact: bool
+    evaluation_count: int
+    span: float
+    sampled: bool
+
+
+def _scaled_evaluator(plant: Plant, gain: np.ndarray):
+    feedback = plant.B @ gain
+
+    def evaluate(values):
+        values = np.atleast_1d(np.asarray(values, dtype=float))
+        return np.linalg.eigvals(plant.A[None, :, :] - values[:, None, None] * feedback[None, :, :])
+
+    return evaluate
+
+
+def _count_unstable(poles: np.ndarray, sampled: bool, norm: float) -> int:
+    return unstable_count(poles, sampled, margin_tolerance(norm, poles.size))
+
+
+def scaled_gain_locus(plant: Plant, K, low: float = 0.0, high: float = 2.0) -> ScaledGainLocus:
+    """Locus of the poles of A − α·B·K as α sweeps [low, high] (α = 1 is the given design).
+
+    When B·K has rank one (always for a single input) the crossings and stable
+    ranges of α are exact, by the same structured eigenvalue problem as
+    :func:`entry_stable_intervals`. Otherwise they are located by bisection on the
+    number of unstable poles between samples (``exact`` is False).
+
+    Parameters
+    ----------
+    plant : Plant
+    K : array_like, shape (m, n)
+    low, high : float
+        Range of the scale α (low < high).
+
+    Returns
+    -------
+    ScaledGainLocus
+
+    Examples
+    --------
+    >>> plant = Plant(A=[[0.0, 1.0, 0.0], [0.0, 0.0, 1.0], [0.0, -2.0, -3.0]], B=[[0.0], [0.0], [1.0]])
+    >>> locus = scaled_gain_locus(plant, [[1.0, 0.0, 0.0]], 0.0, 10.0)
+    >>> [round(c.gain, 9) + 0.0 for c in locus.crossings]  # + 0.0 turns a rounded -0.0 into 0.0
+    [0.0, 6.0]
+    """
+    if not isinstance(plant, Plant):
+        raise GainError(f"the plant must be a gainboard Plant, but {type(plant).__name__} was given")
+    gain = plant.check_gain(K)
+    low, high = _checked_range(low, high, "gain-scale")
+    feedback = plant.B @ gain
+    evaluate = _scaled_evaluator(plant, gain)
+    singular_values = np.linalg.svd(feedback, compute_uv=False)
+    rank_one = singular_values.size < 2 or singular_values[1] <= 10.0 * plant.state_count * _EPS * singular_values[0]
+    if rank_one:
+        left, sizes, right = np.linalg.svd(feedback)
+        family = rank_one_family(plant.A - feedback, left[:, 0] * sizes[0], right[0], 1.0, plant.is_sampled)
+        label = "the gain scale α"
+        analysis = _intervals_from_family(family, (-1, -1), label, lambda: "")
+        crossings = _crossings_inside(analysis, low, high)
+        sampled = adaptive_locus(evaluate, low, high, [1.0] + [c.gain for c in crossings])
+        intervals = analysis.intervals
+    else:
+        sampled = adaptive_locus(evaluate, low, high, [1.0])
+        crossings, intervals, extra = _sampled_crossings(plant, feedback, sampled.values, sampled.poles)
+        sampled = type(sampled)(sampled.values, sampled.poles, sampled.evaluation_count + extra, sampled.span)
+    return ScaledGainLocus(
+        scales=_read_only(sampled.values),
+        poles=_read_only(sampled.poles),
+        start_poles=_read_only(sampled.poles[0]),
+        end_poles=_read_only(sampled.poles[-1]),
+        crossings=crossings,
+        stable_intervals=intervals,
+        exact=bool(rank_one),
+        evaluation_count=sampled.evaluation_count,
+        span=sampled.span,
+        sampled=plant.is_sampled,
+    )
+
+
+def _sampled_crossings(plant: Plant, feedback: np.ndarray, values: np.ndarray, poles: np.ndarray):
+    """Crossings of A − α·B·K located by bisection where the unstable count changes."""
+    sampled = plant.is_sampled
+
+    def count_at(alpha: float) -> tuple[int, np.ndarray]:
+        matrix = plant.A - alpha * feedback
+        eigenvalues = np.linalg.eigvals(matrix)
+        return _count_unstable(eigenvalues, sampled, float(np.linalg.norm(matrix))), eigenvalues
+
+    norms = np.linalg.norm(plant.A[None] - values[:, None, None] * feedback[None], axis=(1, 2))
+    counts = [_count_unstable(row, sampled, float(norm)) for row, norm in zip(poles, norms)]
+    extra = 0
+    crossings = []
+    for k in range(len(values) - 1):
+        if counts[k] == counts[k + 1]:
+            continue
+        a, b = float(values[k]), float(values[k + 1])
+        count_a = counts[k]
+        while b - a > 4.0 * _EPS * max(abs(a), abs(b), 1.0):
+            middle = 0.5 * (a + b)
+            count_m, _ = count_at(middle)
+            extra += 1
+            if count_m == count_a:
+                a = middle
+            else:
+                b = middle
+        alpha = 0.5 * (a + b)
+        _, eigenvalues = count_at(alpha)
+        nearest = complex(eigenvalues[int(np.argmin(np.abs(boundary_distance(eigenvalues, sampled))))])
+        if sampled:
+            frequency = abs(math.atan2(nearest.imag, nearest.real))
+            point = complex(math.cos(frequency), math.sin(frequency))
+        else:
+            frequency = abs(nearest.imag)
+            point = complex(0.0, frequency)
+        crossings.append(Crossing(alpha, frequency, point, counts[k], counts[k + 1], math.nan, b - a, False, False))
+    intervals = []
+    edges = [float(values[0])] + [c.gain for c in crossings] + [float(values[-1])]
+    piece_counts = [counts[0]] + [c.unstable_above for c in crossings]
+    for (low, high), count in zip(zip(edges[:-1], edges[1:]), piece_counts):
+        if count == 0 and high > low:
+            intervals.append((low, high))
+    return tuple(crossings), tuple(intervals), extra
+
+
+# ---------------------------------------------------------------------------
+# Sensitivity
+# ---------------------------------------------------------------------------
+@dataclass(frozen=True, eq=False)
+class PoleSensitivity:
+    """Rate of change of each closed-loop pole with one gain entry.
+
+    Attributes
+    ----------
+    entry : (int, int)
+    poles : numpy.ndarray, shape (n,), complex
+        Closed-loop poles at the given K.
+    derivatives : numpy.ndarray, shape (n,), complex
+        dλ/dk_ij = −(yᴴb)(e_jᵀx)/(yᴴx) with right and left eigenvectors x, y
+        (units: pole units per gain unit). NaN where ``defective`` is True.
+    defective : numpy.ndarray, shape (n,), bool
+        True where the pole is repeated (numerically) or defective: there the
+        pole is not a differentiable function of the gain.
+    condition_numbers : numpy.ndarray, shape (n,)
+        Eigenvalue condition numbers ‖x‖‖y‖/|yᴴx|.
+    note : str
+        Explains any NaN entries.
+    """
+
+    entry: tuple[int, int]
+    poles: np.ndarray
+    derivatives: np.ndarray
+    defective: np.ndarray
+    condition_numbers: np.ndarray
+    note: str
+
+
+def pole_sensitivity(plant: Plant, K, row: int, col: int) -> PoleSensitivity:
+    """First-order sensitivity of every closed-loop pole to the gain entry K[row, col].
+
+    With K(v) = K₀ + (v − K₀[row, col])·e_i·e_jᵀ, the closed loop changes by
+    −b·e_jᵀ per unit of v, so a simple pole λ with right/left eigenvectors x, y
+    moves at dλ/dv = −(yᴴb)(e_jᵀx)/(yᴴx) (first-order eigenvalue perturbation).
+
+    Parameters
+    ----------
+    plant : Plant
+    K : array_like, shape (m, n)
+    row, col : int
+        Zero-based entry.
+
+    Returns
+    -------
+    PoleSensitivity
+
+    Examples
+    --------
+    >>> plant = Plant(A=[[-1.0]], B=[[2.0]])
+    >>> pole_sensitivity(plant, [[0.5]], 0, 0).derivatives.tolist()
+    [(-2+0j)]
+    """
+    gain, row, col = _checked_entry(plant, K, row, col)
+    closed_loop = plant.A - plant.B @ gain
+    n = plant.state_count
+    eigenvalues, left, right = scipy.linalg.eig(closed_loop, left=True, right=True)
+    b = plant.B[:, row]
+    projections = np.einsum("ik,ik->k", left.conj(), right)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        conditions = np.linalg.norm(left, axis=0) * np.linalg.norm(right, axis=0) / np.abs(projections)
+        derivatives = -(left.conj().T @ b) * right[col, :] / projections
+    conditions = np.where(np.isfinite(conditions), conditions, np.inf)
+    norm = float(np.linalg.norm(closed_loop))
+    defective = ~np.isfinite(conditions)
+    for k in range(n):
+        for other in range(n):
+            if other == k:
+                continue
+            # Two computed poles closer than their combined rounding radius cannot be told apart.
+            radius = 10.0 * n * _EPS * max(norm, _EPS) * (conditions[k] + conditions[other])
+            if abs(eigenvalues[k] - eigenvalues[other]) <= radius:
+                defective[k] = True
+    derivatives = np.where(defective, complex(math.nan, math.nan), derivatives)
+    note = ""
+    if defective.any():
+        listing = ", ".join(_format_pole(p) for p in eigenvalues[defective])
+        note = (
+            f"pole(s) {listing} are repeated or defective: they split as sqrt-like or unevenly when "
+            f"{_entry_label(plant, row, col)} changes, so no single derivative exists (reported as NaN)"
+        )
+    return PoleSensitivity((row, col), _read_only(eigenvalues), _read_only(derivatives), _read_only(defective),
+                           _read_only(conditions), note)
+
+
+# ---------------------------------------------------------------------------
+# Default sweep range
+# ---------------------------------------------------------------------------
+def default_entry_range(plant: Plant, K, row: int, col: int) -> tuple[float, float]:
+    """A sensible slider or sweep range for one gain entry.
+
+    The range covers the current value ± max(3·|value|, natural scale), where the
+    natural scale is the change of the entry at which the feedback term is as large
+    as the plant itself; it is widened to take in the finite ends of the stable
+    interval that contains the current value (or the nearest one) when they lie
+    within 20 times that width, then padded by 10 %. It is never empty.
+
+    Parameters
+    ----------
+    plant : Plant
+    K : array_like, shape (m, n)
+    row, col : int
+        Zero-based entry.
+
+    Returns
+    -------
+    (float, float)
+        low < high.
+
+    Examples
+    --------
+    >>> plant = Plant(A=[[0.0, 1.0, 0.0], [0.0, 0.0, 1.0], [0.0, -2.0, -3.0]], B=[[0.0], [0.0], [1.0]])
+    >>> low, high = default_entry_range(plant, [[1.0, 0.0, 0.0]], 0, 0)
+    >>> low < 0.0 and high > 6.0
+    True
+    """
+    gain, row, col = _checked_entry(plant, K, row, col)
+    family = _entry_family(plant, gain, row, col)
+    analysis = _analyze_family(plant, family, row, col)
+    current = family.current_value
+    width = max(3.0 * abs(current), family.gain_scale)
+    anchors = [current - width, current + width]
+    if analysis.intervals:
+        nearest = min(
+            analysis.intervals,
+            key=lambda iv: 0.0 if iv[0] < current < iv[1] else min(abs(current - iv[0]), abs(current - iv[1])),
+        )
+        for end in nearest:
+            if math.isfinite(end) and abs(end - current) <= 20.0 * width:
+                anchors.append(end)
+    low, high = min(anchors), max(anchors)
+    pad = 0.1 * (high - low)
+    return (low - pad, high + pad)

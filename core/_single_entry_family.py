@@ -1,0 +1,598 @@
+"""Private machinery for a rank-one family of closed-loop matrices.
+
+Changing one gain entry k_ij (all others fixed) changes the closed-loop matrix by
+a rank-one term: A − BK(v) = A0 − (v − v0)·b·cᵀ with A0 = A − BK (the current
+design), b = B[:, i], c = e_j and v0 = K[i, j]. Scaling the whole gain of a
+single-input plant, α·K, is the same kind of family with c = K[0, :] and v0 = 1.
+
+With δ = v − v0 and g(s) = cᵀ(sI − A0)⁻¹b, the closed-loop poles are the roots of
+1 + δ·g(s). Everything here works on a *minimal* realisation of g, obtained by
+two orthogonal Krylov (Hessenberg) reductions; the poles that the family cannot
+move (not reached from b, or not seen through c) are kept aside as fixed poles.
+
+Boundary crossings (a pole on the imaginary axis, or on the unit circle for a
+sampled plant) are the values of δ that make g(s) real at a boundary point s.
+They come from the zeros of h(s) = g(s) − g(−s) (continuous) or
+h(z) = g(z) − g(1/z) (sampled), computed as generalized eigenvalues of a
+Rosenbrock pencil of size 2·o + 1 (o = order of the minimal realisation), then
+polished by Newton's method on the bordered system
+
+    [ sI − M   b ] [x]   [0]
+    [   cᵀ     0 ] [t] = [1]        →   t(s) = −1/g(s),
+
+whose solution is an exact eigenpair (s, x) of M − t·b·cᵀ. Nothing here ever
+forms polynomial coefficients.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from functools import cached_property
+
+import numpy as np
+import scipy.linalg
+
+__all__: list[str] = []  # private helpers, nothing re-exported
+
+_EPS = np.finfo(float).eps
+# Pencil eigenvalues this close (relative) to the boundary are polished by Newton's
+# method; a tangential touch is a double zero of h and is computed only to about
+# sqrt(eps) by the pencil, so the net must be much wider than eps.
+_CANDIDATE_NET = 1e-4
+_NEWTON_STEPS = 40
+
+
+# ---------------------------------------------------------------------------
+# Orthogonal Krylov reduction (controllable / observable part of a SISO system)
+# ---------------------------------------------------------------------------
+@dataclass(frozen=True, eq=False)
+class KrylovReduction:
+    """Qᵀ·matrix·Q = [[H11, H12], [0, H22]] with H11 (r×r) upper Hessenberg and Qᵀ·vector = β·e1.
+
+    The first r columns of Q span the Krylov space of (matrix, vector): the part
+    of the state space that the vector can reach.
+    """
+
+    transform: np.ndarray  # Q, (n, n), orthogonal
+    reduced: np.ndarray  # H, (n, n), upper Hessenberg with H[r, r-1] = 0
+    size: int  # r
+    leading: float  # β
+
+    @property
+    def reached_block(self) -> np.ndarray:
+        return self.reduced[: self.size, : self.size]
+
+    @property
+    def unreached_block(self) -> np.ndarray:
+        return self.reduced[self.size :, self.size :]
+
+
+def krylov_reduction(matrix: np.ndarray, vector: np.ndarray, scale: float, vector_scale: float) -> KrylovReduction:
+    """Orthogonal reduction of (matrix, vector) to Hessenberg form with the vector along e1.
+
+    A Householder reflector maps the vector onto β·e1; the standard Hessenberg
+    reduction leaves e1 fixed, so the Hessenberg columns are an orthonormal Krylov
+    basis. The first subdiagonal entry below ``10·n·eps·scale`` (scale = ‖matrix‖)
+    ends the reachable part: that is the backward error of the reduction itself.
+    The vector counts as zero below ``100·n·eps·vector_scale``, where vector_scale is
+    the size of the vector it was projected from.
+    """
+    n = matrix.shape[0]
+    norm = float(np.linalg.norm(vector))
+    if norm == 0.0 or norm <= 100.0 * n * _EPS * vector_scale:
+        return KrylovReduction(np.eye(n), np.array(matrix, dtype=float), 0, 0.0)
+    reflector_vector = np.array(vector, dtype=float)
+    beta = -math.copysign(norm, reflector_vector[0])
+    reflector_vector[0] -= beta
+    reflector_vector /= np.linalg.norm(reflector_vector)
+    reflector = np.eye(n) - 2.0 * np.outer(reflector_vector, reflector_vector)
+    rotated = reflector @ matrix @ reflector
+    if n > 2:
+        hessenberg, inner = scipy.linalg.hessenberg(rotated, calc_q=True)
+    else:
+        hessenberg, inner = rotated, np.eye(n)
+    transform = reflector @ inner
+    hessenberg = np.array(hessenberg)
+    size = n
+    for k in range(n - 1):
+        if abs(hessenberg[k + 1, k]) <= 10.0 * n * _EPS * scale:
+            size = k + 1
+            break
+    hessenberg[size:, :size] = 0.0  # the deflated entry (and rounding below the Hessenberg band)
+    return KrylovReduction(transform, hessenberg, size, beta)
+
+
+# ---------------------------------------------------------------------------
+# The minimal family
+# ---------------------------------------------------------------------------
+@dataclass(frozen=True, eq=False)
+class RankOneFamily:
+    """Poles of A0 − (v − v0)·b·cᵀ, split into a fixed set and a minimal moving part.
+
+    The moving poles are the eigenvalues of M − (v − v0)·w·bn·cnᵀ, with bn and cn
+    normalised to norm ``pole_scale`` and w = ``direction_weight``; the fixed poles
+    do not depend on v.
+    """
+
+    sampled: bool
+    current_value: float
+    moving_matrix: np.ndarray  # M, (o, o)
+    moving_input: np.ndarray  # bn, (o,)
+    moving_output: np.ndarray  # cn, (o,)
+    direction_weight: float  # w
+    fixed_poles: np.ndarray  # complex, (n − o,)
+    unreached_poles: np.ndarray  # fixed because b cannot reach them
+    unseen_poles: np.ndarray  # fixed because c does not see them
+    full_norm: float  # ‖A0‖_F
+    state_count: int
+    pole_scale: float  # size of the moving poles (≥ 1 for a sampled plant: the unit circle)
+
+    @property
+    def order(self) -> int:
+        return self.moving_matrix.shape[0]
+
+    @property
+    def has_effect(self) -> bool:
+        return self.order > 0
+
+    @cached_property
+    def gain_scale(self) -> float:
+        """The change of v at which the feedback term is as large as the plant itself."""
+        if not self.has_effect:
+            return max(abs(self.current_value), 1.0)
+        return 1.0 / (self.direction_weight * self.pole_scale)
+
+    def moving_closed_loop(self, values) -> np.ndarray:
+        """Moving part M − (v − v0)·w·bn·cnᵀ for each v; shape (len(values), o, o)."""
+        values = np.atleast_1d(np.asarray(values, dtype=float))
+        outer = np.outer(self.moving_input, self.moving_output) * self.direction_weight
+        shifts = values - self.current_value
+        return self.moving_matrix[None, :, :] - shifts[:, None, None] * outer[None, :, :]
+
+    def poles(self, values) -> np.ndarray:
+        """All closed-loop poles for each v; shape (len(values), n); moving poles first."""
+        values = np.atleast_1d(np.asarray(values, dtype=float))
+        if self.has_effect:
+            moving = np.linalg.eigvals(self.moving_closed_loop(values))
+        else:
+            moving = np.zeros((values.size, 0), dtype=complex)
+        fixed = np.broadcast_to(self.fixed_poles, (values.size, self.fixed_poles.size))
+        return np.concatenate([moving.astype(complex), fixed], axis=1)
+
+
+def reduce_input(closed_loop: np.ndarray, direction_input: np.ndarray) -> KrylovReduction:
+    """The reachable part of (A0, b): shared by every family with the same A0 and b."""
+    vector_norm = float(np.linalg.norm(direction_input))
+    return krylov_reduction(closed_loop, direction_input, float(np.linalg.norm(closed_loop)), vector_norm)
+
+
+def family_from_reduction(
+    reduction: KrylovReduction,
+    closed_loop: np.ndarray,
+    direction_output: np.ndarray,
+    current_value: float,
+    sampled: bool,
+) -> RankOneFamily:
+    """Build the minimal family from the reachable part of (A0, b) and the output row c."""
+    n = closed_loop.shape[0]
+    full_norm = float(np.linalg.norm(closed_loop))
+    unreached = np.linalg.eigvals(reduction.unreached_block) if reduction.size < n else np.zeros(0)
+    r = reduction.size
+    empty = np.zeros((0, 0))
+    if r == 0:
+        return RankOneFamily(sampled, float(current_value), empty, np.zeros(0), np.zeros(0), 0.0,
+                             _as_flat_complex(unreached), _as_flat_complex(unreached), np.zeros(0, complex),
+                             full_norm, n, 1.0)
+    reached = reduction.reached_block
+    reached_output = reduction.transform[:, :r].T @ direction_output
+    reached_input = np.zeros(r)
+    reached_input[0] = reduction.leading
+    # The observable part of (reached, reached_output) is the reachable part of the transpose.
+    dual = krylov_reduction(reached.T, reached_output, full_norm, float(np.linalg.norm(direction_output)))
+    o = dual.size
+    unseen = np.linalg.eigvals(dual.unreached_block) if o < r else np.zeros(0)
+    fixed = _as_flat_complex(np.concatenate([unreached, unseen]))
+    if o == 0:
+        return RankOneFamily(sampled, float(current_value), empty, np.zeros(0), np.zeros(0), 0.0,
+                             fixed, _as_flat_complex(unreached), _as_flat_complex(unseen), full_norm, n, 1.0)
+    moving_matrix = dual.reduced[:o, :o].T.copy()
+    moving_input = (dual.transform.T @ reached_input)[:o]
+    moving_output = np.zeros(o)
+    moving_output[0] = dual.leading
+    input_norm = float(np.linalg.norm(moving_input))
+    output_norm = abs(dual.leading)
+    # A moving matrix of rounding size is zero; a sampled plant's poles live on the scale
+    # of the unit circle however small M is.
+    pole_scale = max(float(np.linalg.norm(moving_matrix)), 1e3 * _EPS * full_norm, 1.0 if sampled else 0.0)
+    if pole_scale == 0.0:
+        pole_scale = 1.0
+    # Normalise both vectors to the size of M so the pencil and the bordered matrix are balanced.
+    weight = input_norm * output_norm / pole_scale**2
+    if input_norm == 0.0:
+        return RankOneFamily(sampled, float(current_value), empty, np.zeros(0), np.zeros(0), 0.0,
+                             _as_flat_complex(np.concatenate([fixed, np.linalg.eigvals(moving_matrix)])),
+                             _as_flat_complex(unreached), _as_flat_complex(unseen), full_norm, n, 1.0)
+    return RankOneFamily(
+        sampled=sampled,
+        current_value=float(current_value),
+        moving_matrix=moving_matrix,
+        moving_input=moving_input * (pole_scale / input_norm),
+        moving_output=moving_output * (pole_scale / output_norm),
+        direction_weight=weight,
+        fixed_poles=fixed,
+        unreached_poles=_as_flat_complex(unreached),
+        unseen_poles=_as_flat_complex(unseen),
+        full_norm=full_norm,
+        state_count=n,
+        pole_scale=pole_scale,
+    )
+
+
+def rank_one_family(closed_loop, direction_input, direction_output, current_value, sampled) -> RankOneFamily:
+    """Family A0 − (v − v0)·b·cᵀ from scratch (one reduction for b, one for c)."""
+    closed_loop = np.asarray(closed_loop, dtype=float)
+    reduction = reduce_input(closed_loop, np.asarray(direction_input, dtype=float))
+    return family_from_reduction(reduction, closed_loop, np.asarray(direction_output, dtype=float),
+                                 current_value, sampled)
+
+
+def _as_flat_complex(values: np.ndarray) -> np.ndarray:
+    """Flat complex copy (LAPACK already returns exact conjugate pairs for real matrices)."""
+    return np.array(values, dtype=complex).ravel()
+
+
+# ---------------------------------------------------------------------------
+# Stability measures
+# ---------------------------------------------------------------------------
+def boundary_distance(poles: np.ndarray, sampled: bool) -> np.ndarray:
+    """Signed distance past the stability boundary: Re s, or |z| − 1 (negative = stable)."""
+    poles = np.asarray(poles)
+    return np.abs(poles) - 1.0 if sampled else poles.real
+
+
+def unstable_count(poles: np.ndarray, sampled: bool, tolerance: float) -> int:
+    """Poles that are not stable by more than ``tolerance`` (on or past the boundary)."""
+    return int(np.count_nonzero(boundary_distance(poles, sampled) >= -tolerance))
+
+
+def margin_tolerance(norm: float, size: int) -> float:
+    """How close to the boundary a computed pole must be to count as marginal.
+
+    Eigenvalues are computed with an absolute error of about size·eps·‖matrix‖
+    (backward stable QR algorithm, unit condition number); 100× that is the margin.
+    """
+    return 100.0 * max(size, 1) * _EPS * max(norm, _EPS)
+
+
+# ---------------------------------------------------------------------------
+# Boundary crossings
+# ---------------------------------------------------------------------------
+@dataclass(frozen=True)
+class BoundaryPoint:
+    """A verified value of v at which a moving pole sits on the stability boundary."""
+
+    gain: float
+    point: complex  # the boundary pole (upper half plane)
+    parameter: float  # ω ≥ 0 (rad/s) or θ in [0, π] (rad)
+    condition: float  # eigenvalue condition number of that pole
+    speed: float  # d(boundary distance)/dv at the crossing (NaN where branches meet on the boundary)
+    gain_uncertainty: float
+    backward_error: float
+    exact: bool = True
+
+
+def _bordered_matrices(family: RankOneFamily, points) -> np.ndarray:
+    """Bordered matrices R(s) = [[sI − M, b], [cᵀ, 0]] for each s; shape (k, o + 1, o + 1)."""
+    o = family.order
+    points = np.atleast_1d(np.asarray(points, dtype=complex))
+    bordered = np.zeros((points.size, o + 1, o + 1), dtype=complex)
+    bordered[:, :o, :o] = -family.moving_matrix
+    diagonal = np.arange(o)
+    bordered[:, diagonal, diagonal] += points[:, None]
+    bordered[:, :o, o] = family.moving_input
+    bordered[:, o, :o] = family.moving_output
+    return bordered
+
+
+def _solve_each(matrices: np.ndarray, rhs: np.ndarray) -> np.ndarray:
+    """Batched solve; a matrix that is exactly singular gives a row of NaN instead of an error."""
+    try:
+        return np.linalg.solve(matrices, rhs)
+    except np.linalg.LinAlgError:
+        out = np.full(rhs.shape, np.nan, dtype=complex)
+        for k in range(matrices.shape[0]):
+            try:
+                out[k] = np.linalg.solve(matrices[k], rhs[k])
+            except np.linalg.LinAlgError:
+                pass
+        return out
+
+
+def _bordered_solutions(family: RankOneFamily, points: np.ndarray):
+    """Solve R(s)·[x; t] = e and R(s)ᴴ·[y; w] = e for every s at once.
+
+    Returns t (k,), x (k, o), y (k, o), t' = dt/ds = −yᴴx (k,), and a condition
+    estimate ‖R‖·max(‖R⁻¹e‖, ‖R⁻ᴴe‖) (k,). That estimate is a lower bound on
+    cond(R); it blows up next to a zero of g (where R is singular) because the
+    left null vector of R has a non-zero last entry for a minimal realisation.
+    """
+    o = family.order
+    bordered = _bordered_matrices(family, points)
+    k = bordered.shape[0]
+    pair = np.concatenate([bordered, bordered.conj().transpose(0, 2, 1)])
+    unit = np.zeros((2 * k, o + 1, 1), dtype=complex)
+    unit[:, o, 0] = 1.0
+    solutions = _solve_each(pair, unit)[:, :, 0]
+    right, left = solutions[:k], solutions[k:]
+    x, t, y = right[:, :o], right[:, o], left[:, :o]
+    # d/ds of R·[x; t] = e gives R·[x'; t'] = −[x; 0], so t' = −eᵀR⁻¹[x; 0] = −yᴴx.
+    derivative = -np.einsum("ki,ki->k", y.conj(), x)
+    condition = np.linalg.norm(bordered, axis=(1, 2)) * np.maximum(
+        np.linalg.norm(right, axis=1), np.linalg.norm(left, axis=1)
+    )
+    return t, x, y, derivative, condition
+
+
+def _closed_norm_bound(family: RankOneFamily, t):
+    """Upper bound ‖M‖ + |t|·‖b‖·‖c‖ on ‖M − t·b·cᵀ‖_F (cheaper than forming it)."""
+    scale = family.pole_scale
+    return scale + np.abs(t) * scale * scale
+
+
+def _singular_limit(family: RankOneFamily) -> float:
+    return 1.0 / (1e3 * max(family.order, 1) * _EPS)
+
+
+def _points_from_parameters(parameters: np.ndarray, sampled: bool) -> np.ndarray:
+    parameters = np.asarray(parameters, dtype=float)
+    if not sampled:
+        return 1j * parameters
+    points = np.exp(1j * parameters)
+    # z = ±1 exactly, so that g (real there) gives an exactly real gain
+    points = np.where(parameters == 0.0, 1.0 + 0j, points)
+    return np.where(parameters == math.pi, -1.0 + 0j, points)
+
+
+def _refine_boundary_points(family: RankOneFamily, parameters) -> list[BoundaryPoint]:
+    """Newton's method on φ(p) = Im t(s(p)) = 0 along the boundary, for all candidates at once.
+
+    s(p) = jp (continuous) or e^{jp} (sampled); φ'(p) = Re t'(s) or Re(t'(s)·s).
+    A candidate is kept when its backward error (below) reaches rounding level and
+    the bordered matrix is not singular there.
+    """
+    o = family.order
+    sampled = family.sampled
+    parameters = np.array(parameters, dtype=float)
+    count = parameters.size
+    best_backward = np.full(count, np.inf)
+    best_parameter = parameters.copy()
+    best_point = np.zeros(count, dtype=complex)
+    best_t = np.zeros(count, dtype=complex)
+    best_x = np.zeros((count, o), dtype=complex)
+    best_y = np.zeros((count, o), dtype=complex)
+    best_derivative = np.zeros(count, dtype=complex)
+    best_condition = np.full(count, np.inf)
+    active = np.ones(count, dtype=bool)
+    reference = 1.0 if sampled else family.pole_scale
+    for _ in range(_NEWTON_STEPS):
+        index = np.flatnonzero(active)
+        if index.size == 0:
+            break
+        s = _points_from_parameters(parameters[index], sampled)
+        t, x, y, derivative, condition = _bordered_solutions(family, s)
+        finite = np.isfinite(t) & np.all(np.isfinite(x), axis=1) & np.all(np.isfinite(y), axis=1)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            # (s, x) is an exact eigenpair of M − t·bn·cnᵀ; dropping Im t leaves the residual
+            # |Im t|·‖bn‖ (cnᵀx = 1): the backward error of s as a pole at the real gain Re t.
+            backward = np.abs(t.imag) * family.pole_scale / (
+                np.linalg.norm(x, axis=1) * _closed_norm_bound(family, t.real)
+            )
+            slope = (derivative * s).real if sampled else derivative.real
+            step = -t.imag / slope
+        backward = np.where(finite, backward, np.inf)
+        better = backward < best_backward[index]
+        chosen = index[better]
+        best_backward[chosen] = backward[better]
+        best_parameter[chosen] = parameters[chosen]
+        best_point[chosen] = s[better]
+        best_t[chosen] = t[better]
+        best_x[chosen] = x[better]
+        best_y[chosen] = y[better]
+        best_derivative[chosen] = derivative[better]
+        best_condition[chosen] = condition[better]
+        stop = (backward <= 4.0 * _EPS) | ~finite | ~np.isfinite(step)
+        moving = index[~stop]
+        parameters[moving] += step[~stop]
+        tiny = np.abs(step) <= 4.0 * _EPS * np.maximum(np.abs(parameters[index]), reference)
+        active[index[stop | tiny]] = False
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        gains = family.current_value + best_t.real / family.direction_weight
+    keep = (
+        (best_backward <= 1e3 * max(o, 1) * _EPS)
+        # next to a zero of g on the boundary the bordered matrix is singular: that pole is
+        # reached only at infinite gain
+        & (best_condition <= _singular_limit(family))
+        & np.isfinite(gains)
+    )
+    if not keep.any():
+        return []
+    conditions, speeds, uncertainties = _crossing_measures(
+        family, best_point[keep], best_t[keep], best_x[keep], best_y[keep], best_derivative[keep]
+    )
+    found = []
+    for k, candidate in enumerate(np.flatnonzero(keep)):
+        parameter = best_parameter[candidate]
+        parameter = abs(math.remainder(parameter, 2.0 * math.pi)) if sampled else abs(parameter)
+        point = complex(_points_from_parameters(np.array([parameter]), sampled)[0])
+        found.append(BoundaryPoint(float(gains[candidate]), point, float(parameter), float(conditions[k]),
+                                   float(speeds[k]), float(uncertainties[k]), float(best_backward[candidate])))
+    return found
+
+
+def _crossing_measures(family: RankOneFamily, points, t, x, y, derivative):
+    """Condition numbers, boundary speeds dρ/dv and gain uncertainties of boundary poles (arrays)."""
+    o = family.order
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        y_dot_x = np.abs(np.einsum("ki,ki->k", y.conj(), x))
+        conditions = np.linalg.norm(x, axis=1) * np.linalg.norm(y, axis=1) / y_dot_x
+        conditions = np.where(np.isfinite(conditions), conditions, np.inf)
+        # λ(t) is the inverse function of t(s): dλ/dt = 1/t'(s); v = v0 + t/w. Where t'(s) = 0
+        # two branches meet on the boundary and the speed is undefined (NaN).
+        pole_speed = np.where(derivative != 0, family.direction_weight / derivative, np.nan)
+        speeds = (np.conj(points) * pole_speed).real if family.sampled else pole_speed.real
+        pole_errors = max(o, 1) * _EPS * _closed_norm_bound(family, t.real) * conditions
+        uncertainties = np.where(np.isfinite(speeds) & (speeds != 0), pole_errors / np.abs(speeds), np.inf)
+    return conditions, speeds, uncertainties
+
+
+def boundary_pencil(family: RankOneFamily) -> tuple[np.ndarray, np.ndarray]:
+    """(F, E) whose generalized eigenvalues are the zeros of h (times fixed factors).
+
+    Continuous: Rosenbrock pencil of g(s) − g(−s) with realisation
+    (diag(M, −M), [b; b], [c; c]). Sampled: a descriptor pencil for g(z) − g(1/z):
+    (zI − M)x = b·u, (I − zM)y = z·b·u (so y = (z⁻¹I − M)⁻¹b·u), cᵀx − cᵀy = 0.
+    """
+    M, b, c = family.moving_matrix, family.moving_input, family.moving_output
+    o = family.order
+    size = 2 * o + 1
+    F = np.zeros((size, size))
+    E = np.zeros((size, size))
+    identity = np.eye(o)
+    F[:o, :o] = M
+    F[:o, 2 * o] = b
+    E[:o, :o] = identity
+    if family.sampled:
+        F[o : 2 * o, o : 2 * o] = identity
+        E[o : 2 * o, o : 2 * o] = M
+        E[o : 2 * o, 2 * o] = b
+        F[2 * o, :o] = c
+        F[2 * o, o : 2 * o] = -c
+    else:
+        F[o : 2 * o, o : 2 * o] = -M
+        F[o : 2 * o, 2 * o] = b
+        E[o : 2 * o, o : 2 * o] = identity
+        F[2 * o, :o] = c
+        F[2 * o, o : 2 * o] = c
+    return F, E
+
+
+def boundary_is_everywhere(family: RankOneFamily) -> bool:
+    """True when g(s) is real at every boundary point (h ≡ 0).
+
+    Then every boundary point is a closed-loop pole for some real v and the
+    moving poles come in mirror pairs (s, −s̄) or (z, 1/z̄): no value of v makes
+    them all stable. Tested at three boundary points away from 0 and ±1.
+    """
+    fractions = np.array([0.3711, 1.1307, 2.7183])
+    if family.sampled:
+        points = np.exp(1j * fractions)
+    else:
+        points = 1j * fractions * family.pole_scale
+    bordered = _bordered_matrices(family, points)
+    unit = np.zeros((points.size, family.order + 1, 1), dtype=complex)
+    unit[:, -1, 0] = 1.0
+    conclusive = 0
+    for matrix, rhs in zip(bordered, unit):
+        try:
+            t = np.linalg.solve(matrix, rhs)[-1, 0]
+        except np.linalg.LinAlgError:
+            continue
+        if not np.isfinite(t) or t == 0.0:
+            continue
+        conclusive += 1
+        if abs(t.imag) > 1e4 * max(family.order, 1) * _EPS * abs(t):
+            return False
+    return conclusive >= 2
+
+
+def boundary_points(family: RankOneFamily) -> list[BoundaryPoint]:
+    """Every value of v at which a moving pole is on the stability boundary, sorted by v."""
+    if not family.has_effect:
+        return []
+    F, E = boundary_pencil(family)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        eigenvalues = scipy.linalg.eigvals(F, E, check_finite=False)
+    eigenvalues = eigenvalues[np.isfinite(eigenvalues)]
+    scale = family.pole_scale
+    if family.sampled:
+        near = np.abs(np.abs(eigenvalues) - 1.0) <= _CANDIDATE_NET
+        parameters = np.abs(np.angle(eigenvalues[near]))
+    else:
+        near = np.abs(eigenvalues.real) <= _CANDIDATE_NET * (np.abs(eigenvalues) + scale)
+        parameters = np.abs(eigenvalues[near].imag)
+    # s = 0 and z = ±1 are always zeros of h (g is real there) and are added exactly;
+    # pencil candidates next to them are still polished, since a genuine slow
+    # crossing can sit close by (a polished copy of a trivial root merges with it below).
+    trivial = [0.0, math.pi] if family.sampled else [0.0]
+    parameters = np.sort(parameters)
+    unique: list[float] = list(trivial)
+    for parameter in parameters:
+        if all(abs(parameter - kept) > 1e-9 * max(parameter, 1.0 if family.sampled else scale) for kept in unique[-1:] + trivial):
+            unique.append(float(parameter))
+    found = _refine_boundary_points(family, unique)
+    found.sort(key=lambda p: (p.gain, p.parameter))
+    merged: list[BoundaryPoint] = []
+    for candidate in found:
+        duplicate = False
+        for k, kept in enumerate(merged):
+            same_gain = abs(candidate.gain - kept.gain) <= gain_tolerance(family, candidate.gain)
+            same_point = abs(candidate.point - kept.point) <= 1e-7 * (1.0 if family.sampled else scale + abs(kept.point))
+            if same_gain and same_point:
+                duplicate = True
+                if candidate.backward_error < kept.backward_error:
+                    merged[k] = candidate
+                break
+        if not duplicate:
+            merged.append(candidate)
+    merged.sort(key=lambda p: (p.gain, p.parameter))
+    return merge_touching_pairs(family, merged)
+
+
+def merge_touching_pairs(family: RankOneFamily, points: list[BoundaryPoint]) -> list[BoundaryPoint]:
+    """Replace two crossings that rounding cannot tell apart from a touch by one touch.
+
+    When a pole touches the boundary without crossing it, h has a double zero;
+    rounding may split it into two crossings (out and back in) a few sqrt(eps)
+    apart, with a sliver of "instability" between them. If two consecutive
+    crossings have opposite directions, nearly the same boundary pole, and gains
+    closer than their combined uncertainty, they are reported as one touching point
+    at the midpoint (speed 0, uncertainty covering both).
+    """
+    points = sorted(points, key=lambda p: p.gain)
+    merged: list[BoundaryPoint] = []
+    k = 0
+    while k < len(points):
+        first = points[k]
+        if k + 1 < len(points):
+            second = points[k + 1]
+            gap = second.gain - first.gain
+            near_pole = abs(first.point - second.point) <= 1e-6 * (
+                1.0 if family.sampled else family.pole_scale + abs(first.point)
+            )
+            opposite = first.speed * second.speed < 0.0
+            if first.exact and second.exact and near_pole and opposite and gap <= (
+                first.gain_uncertainty + second.gain_uncertainty
+            ):
+                middle_parameter = 0.5 * (first.parameter + second.parameter)
+                merged.append(
+                    BoundaryPoint(
+                        gain=0.5 * (first.gain + second.gain),
+                        point=complex(_points_from_parameters(np.array([middle_parameter]), family.sampled)[0]),
+                        parameter=middle_parameter,
+                        condition=max(first.condition, second.condition),
+                        speed=0.0,
+                        gain_uncertainty=math.inf,
+                        backward_error=max(first.backward_error, second.backward_error),
+                    )
+                )
+                k += 2
+                continue
+        merged.append(first)
+        k += 1
+    return merged
+
+
+def gain_tolerance(family: RankOneFamily, gain: float) -> float:
+    """Two crossing gains closer than this are one and the same."""
+    return 1e-9 * max(abs(gain), abs(family.current_value), family.gain_scale)
