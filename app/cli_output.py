@@ -6,6 +6,7 @@ Complex numbers are written as ``[re, im]``; infinite or undefined numbers as ``
 
 from __future__ import annotations
 
+import dataclasses
 import json
 import math
 import sys
@@ -164,4 +165,123 @@ def plants_table(record: dict) -> str:
     for plant in record["plants"]:
         kind = "sampled" if plant["sampled"] else "continuous"
         lines.append(f"{plant['name']:<24} {plant['states']} states, {plant['inputs']} input(s), {kind}: {plant['summary']}")
+    return "\n".join(lines) + "\n"
+
+
+# -- evaluate ----------------------------------------------------------------------------------
+
+
+def _worst(values, pick=max):
+    """The worst of several per-output figures, ignoring undefined ones (None when all are undefined)."""
+    finite = [v for v in values if v is not None and not (isinstance(v, float) and math.isnan(v))]
+    return pick(finite) if finite else None
+
+
+def response_record(response, outputs) -> dict | None:
+    """Summary of one response: worst figures over ``outputs`` plus the per-output and per-input details.
+
+    The top-level figures are the worst over the outputs considered (largest settling time,
+    overshoot and rise time) and the largest peak |u| over the inputs, so a script can gate
+    on one number; the lists keep every detail.
+    """
+    if response is None:
+        return None
+    metrics = [response.output_metrics[i] for i in outputs]
+    efforts = response.input_metrics
+    return {
+        "settling_time": _worst(m.settling_time for m in metrics),
+        "overshoot_percent": _worst(m.overshoot_percent for m in metrics),
+        "rise_time": _worst(m.rise_time for m in metrics),
+        "peak_effort": _worst(u.peak_magnitude for u in efforts),
+        "limit_exceeded": any(v.exceeded for v in response.limit_violations),
+        "outputs": [dataclasses.asdict(m) for m in metrics],
+        "inputs": [dataclasses.asdict(u) for u in efforts],
+        "limit_violations": [dataclasses.asdict(v) for v in response.limit_violations if v.exceeded],
+    }
+
+
+def evaluation_record(evaluation, specs_given: bool) -> dict:
+    plant, responses = evaluation.plant, evaluation.responses
+    every_output = range(plant.output_count)
+    record = {
+        "plant": plant.name,
+        "sampled": plant.is_sampled,
+        "sample_time": plant.sample_time,
+        "K": evaluation.gain,
+        "poles": complex_pairs(evaluation.closed_loop.poles),
+        "pole_details": [
+            {
+                "pole": complex(d.value),
+                "damping_ratio": d.damping_ratio,
+                "natural_frequency": d.natural_frequency,
+                "time_constant": d.time_constant,
+                "stable": d.stable,
+            }
+            for d in evaluation.closed_loop.descriptions
+        ],
+        "stable": evaluation.closed_loop.stable,
+        "stability_margin": evaluation.closed_loop.stability_margin,
+        "controllable": evaluation.structure.controllable,
+        "uncontrollable_poles": complex_pairs(evaluation.structure.uncontrollable_poles),
+        "observable": evaluation.structure.observable,
+        "diverging": responses.diverging,
+        "initial": response_record(responses.initial, every_output),
+        "step": response_record(responses.step, plant.tracked_outputs),
+        "step_unavailable_reason": responses.step_unavailable_reason or None,
+        "disturbance": response_record(responses.disturbance, every_output),
+        "prefilter": responses.prefilter,
+        "margins": dataclasses.asdict(evaluation.margins) if evaluation.margins is not None else None,
+        "messages": list(evaluation.messages),
+    }
+    if specs_given and evaluation.spec_report is not None:
+        report = evaluation.spec_report
+        record["specs"] = {
+            "all_passed": report.all_passed,
+            "checks": [dataclasses.asdict(check) for check in report.checks],
+        }
+    return record
+
+
+def evaluation_table(record: dict) -> str:
+    lines = [
+        f"Plant: {record['plant']}" + (f" (sampled, T = {record['sample_time']} s)" if record["sampled"] else ""),
+        "Closed loop: " + ("STABLE" if record["stable"] else "UNSTABLE")
+        + ("" if record["controllable"] else "; uncontrollable poles: "
+           + ", ".join(format_complex(p) for p in record["uncontrollable_poles"])),
+        f"{'pole':>24}  {'damping':>8}  {'ωn (rad/s)':>10}  {'τ (s)':>10}",
+    ]
+    for detail in record["pole_details"]:
+        lines.append(
+            f"{format_complex(detail['pole']):>24}  {format_number(detail['damping_ratio'], 4):>8}  "
+            f"{format_number(detail['natural_frequency'], 5):>10}  {format_number(detail['time_constant'], 5):>10}"
+        )
+    for kind in ("initial", "step", "disturbance"):
+        summary = record[kind]
+        if summary is None:
+            if kind == "step" and record["step_unavailable_reason"]:
+                lines.append(f"step: not available ({record['step_unavailable_reason']})")
+            continue
+        lines.append(
+            f"{kind}: settling {format_number(summary['settling_time'], 4)} s, overshoot "
+            f"{format_number(summary['overshoot_percent'], 4)} %, rise {format_number(summary['rise_time'], 4)} s, "
+            f"peak |u| {format_number(summary['peak_effort'], 4)}" + ("  LIMIT EXCEEDED" if summary["limit_exceeded"] else "")
+        )
+    margins = record["margins"]
+    if margins:
+        if margins.get("gain_margin_db_min") is not None or margins.get("phase_margin_deg") is not None:
+            lines.append(
+                f"margins: gain {format_number(margins['gain_margin_db_min'], 4)} dB, "
+                f"phase {format_number(margins['phase_margin_deg'], 4)}°, delay {format_number(margins['delay_margin'], 4)} s"
+            )
+        if margins.get("disk_margin") is not None:
+            lines.append(f"disk margin: {format_number(margins['disk_margin'], 4)}")
+        if margins.get("note"):
+            lines.append(f"margins note: {margins['note']}")
+    if "specs" in record:
+        lines.append("specs: " + ("ALL PASS" if record["specs"]["all_passed"] else "FAIL"))
+        for check in record["specs"]["checks"]:
+            verdict = {True: "pass", False: "FAIL", None: "not evaluated"}[check["passed"]]
+            lines.append(f"  {verdict:>13}  {check['description']}: required {format_number(check['required'], 4)}, "
+                         f"achieved {format_number(check['achieved'], 4)}")
+    lines.extend(f"note: {message}" for message in record["messages"])
     return "\n".join(lines) + "\n"

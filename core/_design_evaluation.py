@@ -1,3 +1,207 @@
-"""(in progress)"""
+"""One call that computes everything a view of a design needs: ``evaluate_design``.
 
-__all__ = []
+The workbench, the command line and the HTML report all show numbers from this
+single result, so they can never disagree with each other.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from ._closed_loop import ClosedLoopReport, analyze_closed_loop, analyze_open_loop
+from ._errors import GainboardError, GainError
+from ._margins import loop_margins
+from ._plant import Plant
+from ._responses import ResponseSet, simulate_responses
+from ._single_entry import (
+    all_entry_stable_intervals,
+    default_entry_range,
+    entry_locus,
+    entry_stable_intervals,
+    pole_sensitivity,
+)
+from ._spec_checks import check_specs, pole_region
+from ._specs import DesignSpecs
+from ._structure import StructureReport, analyze_structure
+
+__all__ = ["EvaluationOptions", "DesignEvaluation", "evaluate_design"]
+
+
+@dataclass(frozen=True)
+class EvaluationOptions:
+    """What to compute besides the always-present poles and responses.
+
+    Parameters
+    ----------
+    selected_entry : (int, int) or None
+        Zero-based (row = input, column = state) of the gain entry whose locus and
+        pole sensitivities are wanted; ``None`` skips them.
+    entry_range : (float, float) or None
+        Sweep range of the selected entry's locus; automatic around the current value when ``None``.
+    initial_state : array_like, shape (n,), optional
+        Start of the regulation response; the plant's own initial state when ``None``.
+    horizon : float, optional
+        Simulation length in seconds; chosen from the slowest closed-loop pole when ``None``.
+    specs : DesignSpecs, optional
+        Specs to check; the plant file's suggested specs when ``None``.
+    include_margins : bool
+        Compute loop margins at the plant input.
+    include_all_entry_intervals : bool
+        Compute the exact stable interval of every entry of K (for the sliders).
+    """
+
+    selected_entry: tuple[int, int] | None = (0, 0)
+    entry_range: tuple[float, float] | None = None
+    initial_state: np.ndarray | None = None
+    horizon: float | None = None
+    specs: DesignSpecs | None = None
+    include_margins: bool = True
+    include_all_entry_intervals: bool = True
+
+
+@dataclass(frozen=True, eq=False)
+class DesignEvaluation:
+    """Everything known about one design (plant, K); see :func:`evaluate_design`.
+
+    Attributes
+    ----------
+    plant, gain
+        The design evaluated (gain is the checked m×n K).
+    structure : StructureReport
+        Controllability, observability and which open-loop poles can move.
+    open_loop, closed_loop : ClosedLoopReport
+        Poles with damping ratio, natural frequency, time constant; stability verdict.
+    entry_intervals : dict
+        ``(row, col) -> StableIntervals`` for every entry (empty when not requested).
+    selected_entry : (int, int) or None
+        The entry whose locus and sensitivities follow.
+    selected_intervals, selected_locus, sensitivity
+        Exact stable intervals, the branch-tracked locus and dλ/dk of the selected entry.
+    responses : ResponseSet
+        Initial-condition, reference-step and disturbance responses with effort and metrics.
+    margins : LoopMargins or None
+        Loop margins at the plant input.
+    specs : DesignSpecs or None
+        The specs checked.
+    spec_report : SpecReport or None
+        Pass/fail per spec.
+    pole_region : PoleRegion or None
+        Where the specs want the closed-loop poles.
+    messages : tuple of str
+        Warnings for the user (conditioning, divergence, steps that cannot be computed).
+    """
+
+    plant: Plant
+    gain: np.ndarray
+    structure: StructureReport
+    open_loop: ClosedLoopReport
+    closed_loop: ClosedLoopReport
+    entry_intervals: dict
+    selected_entry: tuple[int, int] | None
+    selected_intervals: object | None
+    selected_locus: object | None
+    sensitivity: object | None
+    responses: ResponseSet
+    margins: object | None
+    specs: DesignSpecs | None
+    spec_report: object | None
+    pole_region: object | None
+    messages: tuple[str, ...] = field(default=())
+
+
+def _check_entry(plant: Plant, entry) -> tuple[int, int]:
+    row, col = (int(v) for v in entry)
+    m, n = plant.input_count, plant.state_count
+    if not (0 <= row < m and 0 <= col < n):
+        raise GainError(f"gain entry ({row + 1}, {col + 1}) is outside K, which is {m}×{n}")
+    return row, col
+
+
+def evaluate_design(plant: Plant, gain, options: EvaluationOptions | None = None) -> DesignEvaluation:
+    """Compute everything a view of the design (plant, K) needs, in one call.
+
+    Parameters
+    ----------
+    plant : Plant
+        The plant.
+    gain : array_like, shape (m, n)
+        State-feedback gain K in u = −Kx.
+    options : EvaluationOptions, optional
+        What to compute besides poles and responses.
+
+    Returns
+    -------
+    DesignEvaluation
+
+    Raises
+    ------
+    GainError
+        If K has the wrong shape or the selected entry lies outside K.
+
+    Examples
+    --------
+    >>> plant = Plant(A=[[0.0, 1.0], [0.0, 0.0]], B=[[0.0], [1.0]], C=[[1.0, 0.0]])
+    >>> result = evaluate_design(plant, [[4.0, 4.0]])
+    >>> result.closed_loop.stable, np.round(result.closed_loop.poles, 6).tolist()
+    (True, [(-2+0j), (-2+0j)])
+    """
+    options = options or EvaluationOptions()
+    K = plant.check_gain(gain)
+    specs = options.specs if options.specs is not None else plant.specs
+    messages: list[str] = []
+
+    structure = analyze_structure(plant)
+    open_loop = analyze_open_loop(plant)
+    closed_loop = analyze_closed_loop(plant, K)
+
+    intervals = all_entry_stable_intervals(plant, K) if options.include_all_entry_intervals else {}
+    selected = None if options.selected_entry is None else _check_entry(plant, options.selected_entry)
+    selected_intervals = selected_locus = sensitivity = None
+    if selected is not None:
+        row, col = selected
+        selected_intervals = intervals.get(selected) or entry_stable_intervals(plant, K, row, col)
+        low, high = options.entry_range or default_entry_range(plant, K, row, col)
+        selected_locus = entry_locus(plant, K, row, col, low, high)
+        sensitivity = pole_sensitivity(plant, K, row, col)
+
+    band = specs.settling_band if specs is not None else 0.02
+    responses = simulate_responses(
+        plant, K, initial_state=options.initial_state, horizon=options.horizon, settling_band=band
+    )
+    if responses.diverging:
+        messages.append(f"The closed loop is unstable: {responses.diverging_reason}")
+    if responses.step is None and responses.step_unavailable_reason:
+        messages.append(f"No reference step: {responses.step_unavailable_reason}")
+
+    margins = None
+    if options.include_margins:
+        try:
+            margins = loop_margins(plant, K)
+        except GainboardError as error:  # margins are advisory; the rest of the evaluation still stands
+            messages.append(f"Loop margins not computed: {error}")
+
+    spec_report = region = None
+    if specs is not None:
+        spec_report = check_specs(specs, closed_loop.poles, responses, margins, plant.sample_time)
+        region = pole_region(specs, plant.sample_time)
+
+    return DesignEvaluation(
+        plant=plant,
+        gain=K,
+        structure=structure,
+        open_loop=open_loop,
+        closed_loop=closed_loop,
+        entry_intervals=intervals,
+        selected_entry=selected,
+        selected_intervals=selected_intervals,
+        selected_locus=selected_locus,
+        sensitivity=sensitivity,
+        responses=responses,
+        margins=margins,
+        specs=specs,
+        spec_report=spec_report,
+        pole_region=region,
+        messages=tuple(messages),
+    )
