@@ -135,9 +135,18 @@ def parse_range(text: str) -> tuple[float, float]:
 # -- commands ----------------------------------------------------------------------------------
 
 
+def _save_design_if_asked(args, plant: core.Plant, gain: np.ndarray, notes: str) -> None:
+    if getattr(args, "save", None):
+        from .design_file import Design, save_design
+
+        design = Design(plant=plant, gain=gain, notes=notes).with_gain(gain)
+        save_design(design, args.save)
+
+
 def command_assign(args) -> int:
     plant = resolve_plant(args.plant)
     result = core.assign_poles(plant, parse_poles(args.poles))
+    _save_design_if_asked(args, plant, result.gain, f"Poles assigned by {result.method}: {args.poles}")
     cli_output.emit(cli_output.assignment_record(plant, result), args.json, cli_output.assignment_table)
     return 0
 
@@ -172,6 +181,20 @@ def command_sweep(args) -> int:
     locus = core.entry_locus(plant, gain, row, col, low, high)
     record = cli_output.sweep_record(plant, gain, (row, col), intervals, locus)
     cli_output.emit(record, args.json, cli_output.sweep_table)
+    return 0
+
+
+def command_export(args) -> int:
+    from .design_file import load_design
+    from .export import export_design
+
+    text = export_design(load_design(args.design), args.format)
+    if args.output:
+        from .design_file import write_text_atomically
+
+        write_text_atomically(Path(args.output), text)
+    else:
+        sys.stdout.write(text)
     return 0
 
 
@@ -228,6 +251,7 @@ def build_parser() -> argparse.ArgumentParser:
     assign.add_argument("plant", help=plant_help)
     assign.add_argument("--poles", required=True, help='target poles, e.g. "-2+4j,-2-4j,-10" (z values for sampled plants)')
     assign.add_argument("--json", action="store_true", help="print JSON instead of a table")
+    assign.add_argument("--save", metavar="DESIGN", help="also write a design file (JSON) with the plant and K")
     assign.set_defaults(handler=command_assign)
 
     evaluate = commands.add_parser("evaluate", help="poles, responses, margins and spec checks of a given K")
@@ -246,6 +270,13 @@ def build_parser() -> argparse.ArgumentParser:
     sweep.add_argument("--range", help="LOW,HIGH of the locus sweep (default: around the current value)")
     sweep.add_argument("--json", action="store_true", help="print JSON instead of a table")
     sweep.set_defaults(handler=command_sweep)
+
+    export = commands.add_parser("export", help="write K from a design file where it is used (firmware, scripts, reviews)")
+    export.add_argument("design", help="design file (JSON), saved by the workbench or `assign --save`")
+    export.add_argument("--format", required=True, choices=("json", "csv", "c", "python", "html"),
+                        help="json, csv, c (a C header), python (a snippet) or html (a standalone design report)")
+    export.add_argument("-o", "--output", help="write to this file instead of standard output")
+    export.set_defaults(handler=command_export)
 
     plants = commands.add_parser("plants", help="list the bundled sample plants")
     plants.add_argument("--json", action="store_true", help="print JSON instead of a table")

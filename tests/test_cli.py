@@ -136,3 +136,20 @@ def test_console_script_is_installed_and_refuses_without_traceback(tmp_path):
     )
     assert result.returncode == 2 and "Traceback" not in result.stderr
     assert len(result.stderr.strip().splitlines()) == 1
+
+
+def test_assign_can_save_a_design_that_export_turns_into_a_c_header(plant_file, tmp_path, capsys):
+    design = tmp_path / "design.json"
+    code, _, _ = run(capsys, "assign", plant_file, "--poles", "-2+4j,-2-4j,-10", "--save", str(design))
+    assert code == 0 and design.exists()
+    header = tmp_path / "gains.h"
+    code, out, err = run(capsys, "export", str(design), "--format", "c", "-o", str(header))
+    assert code == 0 and out == "" and err == ""
+    text = header.read_text()
+    # Ogata, Example 10-1 (from memory): K = [199, 55, 8], written with every digit.
+    assert "199" in text and "55" in text and "#ifndef" in text
+
+
+def test_export_refuses_a_missing_design_file(tmp_path, capsys):
+    code, _, err = run(capsys, "export", str(tmp_path / "none.json"), "--format", "json")
+    assert code == 2 and len(err.strip().splitlines()) == 1 and "cannot read design file" in err
