@@ -297,21 +297,9 @@ def plant_to_mapping(plant: core.Plant) -> dict:
     """The plant as the mapping a TOML plant file parses to (JSON-ready: ``±inf`` limits as text).
 
     ``gainboard.core.plant_from_mapping`` rebuilds the same plant from it (after
-    :func:`design_from_json` has turned ``"inf"`` back into a number).
-
-    Raises
-    ------
-    DesignFileError
-        If a tracked output cannot be named uniquely (two outputs share its name).
+    :func:`design_from_json` has turned ``"inf"`` back into a number). Tracked outputs are
+    recorded by name, which is unambiguous because a Plant refuses repeated output names.
     """
-    outputs_named = list(plant.output_names)
-    for index in plant.tracked_outputs:
-        if outputs_named.count(outputs_named[index]) > 1:
-            raise DesignFileError(
-                f"outputs {index + 1} and {outputs_named.index(outputs_named[index]) + 1} are both named "
-                f"{outputs_named[index]!r}; a tracked output must have a name of its own so the design "
-                "file can record which one is tracked — rename one of them"
-            )
     model = {"A": _rows(plant.A), "B": _rows(plant.B), "C": _rows(plant.C), "D": _rows(plant.D)}
     if plant.is_sampled:
         model["sample_time"] = float(plant.sample_time)
@@ -323,9 +311,9 @@ def plant_to_mapping(plant: core.Plant) -> dict:
         inputs["low"] = [_limit_to_json(low) for low, _ in plant.input_limits]
         inputs["high"] = [_limit_to_json(high) for _, high in plant.input_limits]
     outputs = {
-        "names": outputs_named,
+        "names": list(plant.output_names),
         "units": list(plant.output_units),
-        "tracked": [outputs_named[i] for i in plant.tracked_outputs],
+        "tracked": [plant.output_names[i] for i in plant.tracked_outputs],
     }
     disturbance = {
         "names": list(plant.disturbance_names),

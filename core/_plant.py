@@ -130,6 +130,10 @@ def _names(values, count: int, what: str, default_prefix: str) -> tuple[str, ...
     values = tuple(values)
     if len(values) != count or not all(isinstance(v, str) for v in values):
         raise PlantError(f"{what} must be a list of {count} strings, but {list(values)!r} was given")
+    if default_prefix and len(set(values)) != len(values):
+        # Names identify states, inputs and outputs (tracked outputs, exports): they must differ.
+        repeated = sorted({v for v in values if values.count(v) > 1})
+        raise PlantError(f"{what} must all differ, but {repeated} appear more than once; rename them")
     return values
 
 

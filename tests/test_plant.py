@@ -125,6 +125,7 @@ def test_full_plant_file_reads_every_section(tmp_path):
         (MINIMAL + "[inputs]\nlow = [-1.0, -2.0]\nhigh = [1.0, 2.0]\n", r"one \(low, high\) pair per input: 1 expected, 2 given"),
         (MINIMAL + "[states]\nnames = ['only one']\n", r"state names must be a list of 2 strings"),
         (MINIMAL + "[states]\ninitial = [1.0]\n", r"initial state must be 2 finite numbers"),
+        (MINIMAL + "[states]\nnames = ['x', 'x']\n", r"state names must all differ, but \['x'\] appear"),
         (MINIMAL + "[outputs]\ntracked = ['speed']\n", r"tracked names \['speed'\] are not output names"),
         (MINIMAL + "[specs]\nmax_overshoot_percent = -5\n", r"max_overshoot_percent must not be negative"),
         (MINIMAL + "[specs]\nmin_damping_ratio = 1.5\n", r"min_damping_ratio must lie between 0 and 1"),
