@@ -1,0 +1,116 @@
+"""The design bar: K as copyable text, undo/redo, pinning, and typed target poles."""
+
+from __future__ import annotations
+
+from html import escape
+
+import panel as pn
+
+from gainboard import core
+
+from ..theme import format_complex, format_gain_text
+from .html_box import HtmlBox
+from .tables import TABLE_CSS
+
+__all__ = ["DesignBar", "parse_pole_list"]
+
+WIDTH = 350
+
+
+def parse_pole_list(text: str) -> list[complex]:
+    """Read poles such as ``-2+4j, -2-4j, -10`` (``i`` for ``j`` and a true minus sign accepted).
+
+    Raises
+    ------
+    PlacementError
+        Naming the piece that could not be read.
+
+    Examples
+    --------
+    >>> parse_pole_list("−2+4i, -2-4j, -10")
+    [(-2+4j), (-2-4j), (-10+0j)]
+    """
+    cleaned = text.replace("−", "-").replace("i", "j").replace(" ", "")
+    poles = []
+    for piece in cleaned.split(","):
+        if not piece:
+            continue
+        try:
+            poles.append(complex(piece))
+        except ValueError:
+            raise core.PlacementError(f"cannot read the pole {piece!r}; write poles like -2+4j, -2-4j, -10") from None
+    if not poles:
+        raise core.PlacementError("no target poles given; write them like -2+4j, -2-4j, -10")
+    return poles
+
+
+class DesignBar:
+    """K readout and the history and comparison buttons."""
+
+    def __init__(self, state):
+        self.state = state
+        self.undo_button = pn.widgets.Button(label="↶ Undo", width=70, margin=(2, 3), description="Undo the last gain change")
+        self.redo_button = pn.widgets.Button(label="↷ Redo", width=70, margin=(2, 3), description="Redo")
+        self.pin_button = pn.widgets.Button(label="Pin", width=48, margin=(2, 3),
+                                            description="Keep this design as a ghost to compare against")
+        self.unpin_button = pn.widgets.Button(label="Unpin", width=58, margin=(2, 3))
+        self.back_button = pn.widgets.Button(label="Use pinned", width=88, margin=(2, 3),
+                                             description="Make the pinned design's gain current again")
+        self.gain_text = pn.widgets.TextAreaInput(
+            label="K (u = −Kx), copy or paste", value="", height=58, width=WIDTH - 10, margin=(2, 5),
+            css_classes=["gb-gain-text"],
+            stylesheets=[":host textarea { font-family: ui-monospace, monospace; font-size: 12.5px; }"],
+        )
+        self.apply_gain = pn.widgets.Button(label="Apply K", width=80, margin=(2, 5), color="primary")
+        self.copy_gain = pn.widgets.Button(label="Copy K", width=80, margin=(2, 5))
+        self.copy_gain.js_on_click(args={"source": self.gain_text},
+                                   code="navigator.clipboard && navigator.clipboard.writeText(source.value)")
+        self.targets = pn.widgets.TextInput(label="Target poles (keyboard alternative to dragging)",
+                                            placeholder="-2+4j, -2-4j, -10", width=WIDTH + 20, margin=(2, 5))
+        self.assign_button = pn.widgets.Button(label="Assign", width=75, margin=(20, 5, 2, 5), color="primary")
+
+        self.undo_button.on_click(lambda event: self.state.undo())
+        self.redo_button.on_click(lambda event: self.state.redo())
+        self.pin_button.on_click(lambda event: self.state.pin())
+        self.unpin_button.on_click(lambda event: self.state.unpin())
+        self.back_button.on_click(lambda event: self.state.adopt_pinned())
+        self.apply_gain.on_click(lambda event: self.state.set_gain_text(self.gain_text.value))
+        self.assign_button.on_click(lambda event: self._assign())
+        self.state.param.watch(lambda *events: self.refresh_buttons(), ["undo_depth", "redo_depth", "pinned"])
+
+        self.panel = pn.Column(
+            pn.Row(self.undo_button, self.redo_button, self.pin_button, self.unpin_button, self.back_button, margin=0),
+            self.gain_text,
+            pn.Row(self.apply_gain, self.copy_gain, margin=0),
+            margin=0,
+        )
+        self.placement = HtmlBox(css=TABLE_CSS, width=WIDTH + 110, height=34)
+        self.state.param.watch(lambda *events: self.refresh_placement(), "placement_summary")
+        self.target_row = pn.Column(pn.Row(self.targets, self.assign_button, margin=0), self.placement.panel, margin=0)
+
+    def _assign(self) -> None:
+        try:
+            poles = parse_pole_list(self.targets.value or "")
+        except core.GainboardError as error:
+            self.state.show_message(f"Could not place the poles there: {error}", "error")
+            return
+        self.state.place_poles(poles)
+
+    def refresh_placement(self) -> None:
+        summary = self.state.placement_summary
+        self.placement.object = (f'<div class="gb-small">Last pole assignment: {escape(summary)}</div>'
+                                 if summary else "")
+
+    def refresh_buttons(self) -> None:
+        self.undo_button.disabled = self.state.undo_depth == 0
+        self.redo_button.disabled = self.state.redo_depth == 0
+        has_pin = self.state.pinned is not None
+        self.unpin_button.disabled = not has_pin
+        self.back_button.disabled = not has_pin
+
+    def refresh(self, evaluation) -> None:
+        self.gain_text.value = format_gain_text(evaluation.gain)
+        if not self.targets.value:
+            self.targets.placeholder = ", ".join(format_complex(p, 4).replace("−", "-").replace(" ", "")
+                                                 for p in evaluation.closed_loop.poles)
+        self.refresh_buttons()

@@ -1,0 +1,92 @@
+"""Choosing and editing the plant: bundled plants, a file from disk, the TOML in place, sampling."""
+
+from __future__ import annotations
+
+from html import escape
+
+import panel as pn
+
+from ..state import bundled_plants
+from .html_box import HtmlBox
+from .tables import TABLE_CSS, structure_summary_html
+
+__all__ = ["PlantPanel"]
+
+WIDTH = 350
+
+
+class PlantPanel:
+    """Plant controls of one session."""
+
+    def __init__(self, state):
+        self.state = state
+        try:
+            names = list(bundled_plants())
+        except Exception:  # no bundled plants installed: the other ways to load still work
+            names = []
+        self.bundled = pn.widgets.Select(label="Bundled plant", options=names, width=230, margin=(2, 5),
+                                         css_classes=["gb-bundled"])
+        self.open_button = pn.widgets.Button(label="Open", color="primary", width=80, margin=(20, 5, 2, 5))
+        self.file_input = pn.widgets.FileInput(accept=".toml", width=WIDTH - 10, margin=(2, 5), label="plant file",
+                                               css_classes=["gb-plant-file"])
+        self.editor = pn.widgets.TextAreaInput(
+            label="Plant file text (TOML)", value="", height=230, width=WIDTH - 10, margin=(2, 5),
+            stylesheets=[":host textarea { font-family: ui-monospace, monospace; font-size: 12px; }"],
+        )
+        self.apply_button = pn.widgets.Button(label="Apply edits", color="primary", width=110, margin=(2, 5))
+        self.sample_time = pn.widgets.FloatInput(label="Sample time T (s)", value=0.01, start=0.0, width=120,
+                                                 margin=(2, 5))
+        self.sample_button = pn.widgets.Button(label="Sample with ZOH", width=130, margin=(20, 5, 2, 5))
+        self.continuous_button = pn.widgets.Button(label="Back to continuous", width=150, margin=(2, 5))
+        self.structure = HtmlBox(css=TABLE_CSS, width=WIDTH - 10, margin=(2, 5))
+        self.description = HtmlBox(css=TABLE_CSS, width=WIDTH - 10, margin=(2, 5))
+
+        self.open_button.on_click(lambda event: self._open_bundled())
+        self.file_input.param.watch(self._file_chosen, "value")
+        self.apply_button.on_click(lambda event: self.state.load_plant_text(self.editor.value, "edited plant"))
+        self.sample_button.on_click(lambda event: self.state.sample_plant(float(self.sample_time.value or 0.0)))
+        self.continuous_button.on_click(lambda event: self.state.restore_continuous())
+
+        heading = lambda text: pn.pane.HTML(f'<div class="gb-heading">{text}</div>',  # noqa: E731
+                                            stylesheets=[TABLE_CSS], margin=(4, 5, 0, 5))
+        self.panel = pn.Column(
+            heading("open"),
+            pn.Row(self.bundled, self.open_button, margin=0),
+            pn.pane.HTML('<div class="gb-small">or load a plant file (TOML) from disk:</div>',
+                         stylesheets=[TABLE_CSS], margin=(2, 5)),
+            self.file_input,
+            heading("structure"),
+            self.structure.panel,
+            heading("time base"),
+            pn.Row(self.sample_time, self.sample_button, margin=0),
+            self.continuous_button,
+            heading("edit in place"),
+            self.editor,
+            self.apply_button,
+            heading("about this plant"),
+            self.description.panel,
+            margin=0,
+        )
+
+    def _open_bundled(self) -> None:
+        if self.bundled.value:
+            self.state.load_plant_reference(self.bundled.value)
+
+    def _file_chosen(self, event) -> None:
+        if event.new:
+            self.state.load_plant_bytes(event.new, self.file_input.filename or "uploaded file")
+
+    def refresh(self, evaluation) -> None:
+        """Show the current plant's text, structure and description."""
+        if self.state.plant_label in self.bundled.options and self.bundled.value != self.state.plant_label:
+            self.bundled.value = self.state.plant_label
+        if self.editor.value != self.state.plant_text:
+            self.editor.value = self.state.plant_text
+        self.structure.object = structure_summary_html(evaluation)
+        plant = evaluation.plant
+        self.continuous_button.disabled = self.state.continuous_origin is None
+        self.sample_button.disabled = plant.is_sampled
+        text = escape(plant.description or plant.summary or "No description in the plant file.")
+        self.description.object = f'<div class="gb-note" style="white-space: pre-wrap;">{text}</div>'
+        if plant.is_sampled:
+            self.sample_time.value = plant.sample_time

@@ -1,0 +1,182 @@
+"""Tables: closed-loop poles, spec checks with pass/fail, loop margins and plant structure."""
+
+from __future__ import annotations
+
+from html import escape
+
+import numpy as np
+import panel as pn
+
+from ..theme import PALETTE, format_complex, format_number
+from .html_box import HtmlBox
+
+__all__ = ["PoleTable", "ChecksTable", "structure_summary_html", "TABLE_CSS"]
+
+TABLE_CSS = f"""
+table.gb-table {{ border-collapse: collapse; font-size: 12.5px; width: 100%; }}
+table.gb-table th {{ text-align: left; font-weight: 600; color: {PALETTE['muted']};
+  border-bottom: 1px solid {PALETTE['rule']}; padding: 3px 6px; }}
+table.gb-table td {{ padding: 3px 6px; border-bottom: 1px solid #ece9e1; }}
+table.gb-table td.num {{ text-align: right; font-family: ui-monospace, monospace; white-space: nowrap; }}
+.gb-pass {{ color: {PALETTE['pass']}; font-weight: 700; }}
+.gb-fail {{ color: {PALETTE['fail']}; font-weight: 700; }}
+.gb-unknown {{ color: {PALETTE['muted']}; font-style: italic; }}
+.gb-fixed {{ color: {PALETTE['fixed_frame']}; font-style: italic; }}
+.gb-heading {{ font-size: 12px; font-weight: 700; text-transform: uppercase; letter-spacing: 0.06em;
+  color: {PALETTE['muted']}; margin: 8px 0 3px 0; }}
+.gb-note {{ font-size: 12px; color: {PALETTE['ink']}; line-height: 1.45; }}
+.gb-small {{ font-size: 11.5px; color: {PALETTE['muted']}; }}
+"""
+
+WIDTH = 470
+
+
+def _pole_rows(descriptions, movable, sampled: bool, kind: str) -> str:
+    rows = []
+    for index, (description, can_move) in enumerate(zip(descriptions, movable)):
+        value = complex(description.value)
+        cells = [f'<td class="num">{index + 1}</td>', f'<td class="num pole">{format_complex(value, 5)}</td>']
+        if sampled:
+            cells.append(f'<td class="num">{format_complex(description.equivalent_continuous, 4)}</td>')
+        cells += [
+            f'<td class="num">{format_number(description.damping_ratio, 3)}</td>',
+            f'<td class="num">{format_number(description.natural_frequency, 4)}</td>',
+            f'<td class="num">{format_number(description.time_constant, 4)}</td>',
+            '<td>' + ('<span class="gb-pass">stable</span>' if description.stable else '<span class="gb-fail">unstable</span>')
+            + "</td>",
+            "<td>" + ("yes" if can_move else '<span class="gb-fixed">no (uncontrollable)</span>') + "</td>",
+        ]
+        rows.append(
+            f'<tr class="gb-pole-row" data-kind="{kind}" data-real="{value.real!r}" data-imag="{value.imag!r}">'
+            + "".join(cells) + "</tr>"
+        )
+    return "".join(rows)
+
+
+def _pole_table(descriptions, movable, sampled: bool, kind: str) -> str:
+    header = "<th>#</th><th>pole" + (" z" if sampled else " s") + "</th>"
+    if sampled:
+        header += "<th>as s = ln z / T</th>"
+    header += "<th>damping ratio</th><th>natural freq. (rad/s)</th><th>time constant (s)</th><th>stability</th><th>movable</th>"
+    return (f'<table class="gb-table gb-poles-{kind}"><tr>{header}</tr>'
+            + _pole_rows(descriptions, movable, sampled, kind) + "</table>")
+
+
+class PoleTable:
+    """Closed-loop and open-loop poles with damping, frequency, time constant and movability."""
+
+    def __init__(self, state):
+        self.state = state
+        self.pane = HtmlBox(css=TABLE_CSS, width=WIDTH, margin=(4, 5), name="pole_table")
+        self.panel = pn.Column(self.pane.panel, margin=0)
+
+    def refresh(self, evaluation) -> None:
+        sampled = evaluation.plant.is_sampled
+        closed = evaluation.closed_loop
+        movable = self.state.closed_loop_movable()
+        open_loop = evaluation.open_loop
+        open_movable = tuple(evaluation.structure.pole_movable)
+        summary = (
+            f'<span class="gb-pass">closed loop stable</span>' if closed.stable
+            else '<span class="gb-fail">closed loop unstable</span>'
+        )
+        margin_word = "largest |z|" if sampled else "slowest decay rate"
+        html = [
+            '<div class="gb-heading">closed-loop poles</div>',
+            f'<div class="gb-note">{summary} · {margin_word}: {format_number(closed.stability_margin, 4)}</div>',
+            _pole_table(closed.descriptions, movable, sampled, "closed"),
+            '<div class="gb-heading">open-loop poles (K = 0)</div>',
+            _pole_table(open_loop.descriptions, open_movable, sampled, "open"),
+        ]
+        if evaluation.messages:
+            html.append('<div class="gb-heading">notes</div>')
+            html.append('<div class="gb-note">' + "<br>".join(escape(m) for m in evaluation.messages) + "</div>")
+        self.pane.object = "".join(html)
+
+
+def _check_cell(passed) -> str:
+    if passed is None:
+        return '<span class="gb-unknown">not evaluated</span>'
+    return '<span class="gb-pass">pass</span>' if passed else '<span class="gb-fail">fail</span>'
+
+
+class ChecksTable:
+    """Spec checks (required, achieved, pass/fail) and the loop margins."""
+
+    def __init__(self, state):
+        self.state = state
+        self.pane = HtmlBox(css=TABLE_CSS, width=WIDTH, margin=(4, 5), name="checks_table")
+        self.panel = pn.Column(self.pane.panel, margin=0)
+
+    def refresh(self, evaluation) -> None:
+        html = ['<div class="gb-heading">specs</div>']
+        report = evaluation.spec_report
+        if report is None or not report.checks:
+            html.append('<div class="gb-note">This plant has no specs to check against.</div>')
+        else:
+            verdict = ('<span class="gb-pass">every spec met</span>' if report.all_passed
+                       else '<span class="gb-fail">some specs not met</span>')
+            html.append(f'<div class="gb-note">{verdict}</div>')
+            rows = []
+            for check in report.checks:
+                subject = f" ({escape(check.subject)})" if check.subject else ""
+                rows.append(
+                    f'<tr title="{escape(check.detail)}"><td>{escape(check.description)}{subject}</td>'
+                    f'<td class="num">{format_number(check.required)}</td>'
+                    f'<td class="num">{format_number(check.achieved)}</td>'
+                    f"<td>{_check_cell(check.passed)}</td></tr>"
+                )
+            html.append('<table class="gb-table gb-specs"><tr><th>spec</th><th>required</th><th>achieved</th>'
+                        "<th>result</th></tr>" + "".join(rows) + "</table>")
+        html.append('<div class="gb-heading">margins (loop broken at the plant input)</div>')
+        html.append(_margins_html(evaluation.margins))
+        self.pane.object = "".join(html)
+
+
+def _margins_html(margins) -> str:
+    if margins is None:
+        return '<div class="gb-note">Margins are not available for this design.</div>'
+    if not margins.stable_nominal:
+        return f'<div class="gb-note">The closed loop is unstable, so margins are not meaningful. {escape(margins.note)}</div>'
+    rows = [
+        ("gain margin, increase (dB)", margins.gain_margin_increase_db),
+        ("gain margin, decrease (dB)", margins.gain_margin_decrease_db),
+        ("phase margin (deg)", margins.phase_margin_deg),
+        ("crossover frequency (rad/s)", margins.crossover_frequency),
+        ("delay margin (s)", margins.delay_margin),
+        ("disk margin", margins.disk_margin),
+        ("peak sensitivity", margins.peak_sensitivity),
+    ]
+    body = "".join(
+        f'<tr><td>{label}</td><td class="num">{format_number(value) if value is not None else "—"}</td></tr>'
+        for label, value in rows
+    )
+    note = f'<div class="gb-small">{escape(margins.note)}</div>' if margins.note else ""
+    scope = ("every input at once (disk margin); gain and phase margins one loop at a time"
+             if margins.input_count > 1 else "single input")
+    return f'<table class="gb-table gb-margins">{body}</table><div class="gb-small">{scope}</div>{note}'
+
+
+def structure_summary_html(evaluation) -> str:
+    """Which open-loop poles a gain can move, in words."""
+    structure = evaluation.structure
+    plant = evaluation.plant
+    fixed = [format_complex(p, 4) for p in np.asarray(structure.uncontrollable_poles, complex)]
+    lines = [
+        f"{plant.state_count} states, {plant.input_count} input(s), {plant.output_count} output(s); "
+        + (f"sampled every {format_number(plant.sample_time)} s (z-plane)." if plant.is_sampled
+           else "continuous time (s-plane)."),
+    ]
+    if structure.controllable:
+        lines.append('<span class="gb-pass">Every pole can be moved</span> by some gain (controllable).')
+    else:
+        lines.append(
+            f'<span class="gb-fail">{len(fixed)} pole(s) cannot be moved</span> by any gain: '
+            f"{', '.join(fixed)} (uncontrollable; framed on the pole map)."
+        )
+    if structure.nearly_uncontrollable:
+        lines.append(
+            "Some poles are barely reachable from the inputs (controllability margin "
+            f"{format_number(structure.controllability_margin, 3)}): moving them needs very large gains."
+        )
+    return '<div class="gb-note">' + "<br>".join(lines) + "</div>"
