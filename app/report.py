@@ -383,6 +383,19 @@ def _prefilter_note(design: Design, used) -> str:
 # -- the document -----------------------------------------------------------------------------
 
 
+def _inline_bokeh_scripts() -> str:
+    """BokehJS itself, inline, and nothing else.
+
+    Not ``Resources.render()``: once Panel is imported in the same process (the workbench),
+    it adds its own extension files to every Resources object as *paths* relative to a server,
+    which a standalone file cannot load — and a report must open offline.
+    """
+    from bokeh.resources import Resources
+
+    scripts = Resources(mode="inline", components=["bokeh"]).js_raw
+    return "\n".join(f'<script type="text/javascript">{code}</script>' for code in scripts)
+
+
 def design_report_html(design: Design) -> str:
     """The design review report of ``design`` as one standalone HTML document.
 
@@ -408,7 +421,6 @@ def design_report_html(design: Design) -> str:
     if not isinstance(design, Design):
         raise DesignFileError(f"a report needs a Design, got {type(design).__name__}")
     from bokeh.embed import components
-    from bokeh.resources import Resources
 
     plant = design.plant
     evaluated_plant, _, evaluation, integral_step = _evaluate(design)
@@ -525,7 +537,7 @@ Report made by {escape(generator_name())}; every figure is computed from the lin
 <meta name="viewport" content="width=device-width, initial-scale=1">
 <title>{escape(title)}</title>
 <style>{_REPORT_CSS}</style>
-{Resources(mode="inline", components=["bokeh"]).render()}
+{_inline_bokeh_scripts()}
 </head>
 <body>
 {body}

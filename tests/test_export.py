@@ -378,6 +378,10 @@ def pole_rows(html: str) -> list[list[str]]:
 
 @pytest.fixture(scope="module")
 def ogata_report() -> str:
+    # Build it with Panel imported, as in the workbench: Panel adds server-relative extension files to
+    # Bokeh's resources, which a standalone report must not reference.
+    import panel  # noqa: F401
+
     return export_design(OGATA, "html")
 
 
@@ -445,38 +449,3 @@ def test_report_of_an_unstable_design_says_so_and_still_renders():
     assert "closed loop unstable" in text and "closed loop stable" not in text
     assert "margins are not meaningful" in text
     assert html.count('class="fail">unstable') == 1  # exactly one pole in the right half-plane (a0 < 0, from Routh)
-
-
-@pytest.mark.browser
-def test_report_renders_its_plots_with_the_network_cut_off(tmp_path, ogata_report):
-    from pathlib import Path
-
-    chromium = Path("/usr/bin/chromium")
-    if not chromium.exists():
-        pytest.skip("Debian's chromium is not installed at /usr/bin/chromium (apt-get install chromium)")
-    from playwright.sync_api import sync_playwright
-
-    path = tmp_path / "report.html"
-    path.write_text(ogata_report, encoding="utf-8")
-    blocked, errors = [], []
-    with sync_playwright() as playwright:
-        browser = playwright.chromium.launch(executable_path=str(chromium), headless=True,
-                                             args=["--no-sandbox", "--disable-gpu", "--disable-background-networking"])
-        try:
-            page = browser.new_page()
-            page.route("**/*", lambda route: route.continue_() if route.request.url.startswith("file:")
-                       else (blocked.append(route.request.url), route.abort()))
-            page.on("pageerror", lambda error: errors.append(str(error)))
-            page.goto(path.as_uri())
-            # BokehJS draws each figure into canvases inside nested shadow roots once it has run; 7 figures
-            # (pole map, outputs and inputs of three responses) make at least 7 canvases.
-            page.wait_for_function(
-                """() => { let count = 0;
-                    const visit = root => { count += root.querySelectorAll('canvas').length;
-                        root.querySelectorAll('*').forEach(e => { if (e.shadowRoot) visit(e.shadowRoot); }); };
-                    visit(document); return count >= 7; }""",
-                timeout=30_000,
-            )
-        finally:
-            browser.close()
-    assert blocked == [] and errors == []
