@@ -231,10 +231,11 @@ def check_specs(specs, closed_loop_poles, responses=None, margins=None, sample_t
     responses : ResponseSet, optional
         From :func:`simulate_responses`; without it the response-based checks
         (settling, overshoot, input magnitude) are "not evaluated".
-    margins : object, optional
-        Anything with attributes ``gain_margin_db_min`` (smallest of the
-        gain-increase and gain-decrease margins, dB) and ``phase_margin_deg``
-        (degrees, may be None); without it the margin checks are "not evaluated".
+    margins : LoopMargins, optional
+        Single input: ``gain_margin_db_min`` and ``phase_margin_deg`` are checked.
+        Several inputs: the disk margin's guaranteed gain range and phase
+        (``disk_gain_range``, ``disk_phase_margin_deg``), which hold with every
+        input changed at once. Without margins the margin checks are "not evaluated".
     sample_time : float, optional
         Sample time of a sampled loop (taken from ``responses`` when omitted there).
 
@@ -390,25 +391,61 @@ def check_specs(specs, closed_loop_poles, responses=None, margins=None, sample_t
                 ))
 
     # margins ------------------------------------------------------------------------------------------------
-    for spec_name, attribute, description in (
-        ("min_gain_margin_db", "gain_margin_db_min",
-         "smallest gain margin (gain increase or decrease) at the plant input, dB"),
-        ("min_phase_margin_deg", "phase_margin_deg", "phase margin at the plant input, degrees"),
+    for spec_name, description, (value, source) in (
+        ("min_gain_margin_db", "smallest gain margin (gain increase or decrease) at the plant input, dB",
+         _gain_margin_db(margins)),
+        ("min_phase_margin_deg", "phase margin at the plant input, degrees", _phase_margin_deg(margins)),
     ):
         required = getattr(specs, spec_name)
         if required is None:
             continue
-        value = None if margins is None else getattr(margins, attribute, None)
-        if value is None or (isinstance(value, float) and math.isnan(value)):
-            why = "no margins were computed" if margins is None else f"the margins give no {attribute}"
+        if value is None or math.isnan(value):
+            why = "no margins were computed" if margins is None else source
             checks.append(SpecCheck(spec_name, description, required, NAN, None, f"not evaluated: {why}"))
         else:
-            value = float(value)
             checks.append(SpecCheck(spec_name, description, required, value,
-                                    value >= required * (1.0 - BOUNDARY_SLACK) - BOUNDARY_SLACK))
+                                    value >= required * (1.0 - BOUNDARY_SLACK) - BOUNDARY_SLACK, source))
 
     checks_tuple = tuple(checks)
     return SpecReport(checks_tuple, all(c.passed is True for c in checks_tuple))
+
+
+def _finite_or_none(value):
+    return None if value is None or (isinstance(value, float) and math.isnan(value)) else float(value)
+
+
+def _gain_margin_db(margins) -> tuple[float | None, str]:
+    """Gain margin in dB for the spec check, and where it comes from.
+
+    One input: the exact loop gain margin. Several inputs: the disk margin's guaranteed gain range
+    (every input's gain changed at once; conservative, Seiler, Packard & Gahinet 2020 — from memory),
+    as the smaller of its two directions in |dB|.
+    """
+    if margins is None:
+        return None, ""
+    single = _finite_or_none(getattr(margins, "gain_margin_db_min", None))
+    if single is not None:
+        return single, "loop gain margin at the plant input"
+    disk_range = getattr(margins, "disk_gain_range", None)
+    if disk_range is not None:
+        low, high = disk_range
+        down = math.inf if low <= 0 else -20.0 * math.log10(low)
+        up = math.inf if not math.isfinite(high) else 20.0 * math.log10(high)
+        return min(down, up), "disk margin: all inputs' gains changed at once (conservative)"
+    return None, "the margins give no gain margin (is the nominal loop stable?)"
+
+
+def _phase_margin_deg(margins) -> tuple[float | None, str]:
+    """Phase margin in degrees for the spec check (disk margin's phase for several inputs)."""
+    if margins is None:
+        return None, ""
+    single = _finite_or_none(getattr(margins, "phase_margin_deg", None))
+    if single is not None:
+        return single, "loop phase margin at the plant input"
+    disk_phase = _finite_or_none(getattr(margins, "disk_phase_margin_deg", None))
+    if disk_phase is not None:
+        return disk_phase, "disk margin: all inputs' phases changed at once (conservative)"
+    return None, "the margins give no phase margin (is the nominal loop stable?)"
 
 
 # -- the pole region -------------------------------------------------------------------------------------------

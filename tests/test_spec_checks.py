@@ -319,3 +319,29 @@ def test_pole_region_refusals():
         region_boundary(pole_region(None), -1.0)
     with pytest.raises(AnalysisError, match=r"no z-plane radius"):
         pole_region(None).radius
+
+
+def test_margin_specs_of_a_multi_input_loop_use_the_disk_margin():
+    # Batch reactor of Kautsky, Nichols & Van Dooren (1985), reference-cases.md case 21, with an LQR gain
+    # (R = I): the multivariable LQR loop keeps a disk margin of at least 1 (Safonov & Athans 1977,
+    # reference-cases.md case 18), i.e. every input's gain may change at once within (1/2, ∞) →
+    # at least 20·log10(2) ≈ 6.02 dB. The disk gain range (1/(1+α), 1/(1−α)) is from Seiler, Packard &
+    # Gahinet (2020), from memory.
+    import gainboard.core as core
+
+    plant = core.Plant(
+        A=[[1.380, -0.2077, 6.715, -5.676], [-0.5814, -4.290, 0.0, 0.6750],
+           [1.067, 4.273, -6.654, 5.893], [0.0480, 4.273, 1.343, -2.104]],
+        B=[[0.0, 5.679], [1.136, 1.136], [0.0, 0.0], [-3.146, 0.0]],
+    )
+    gain = core.design_lqr(plant, np.eye(4), np.eye(2)).gain
+    margins = core.loop_margins(plant, gain)
+    assert margins.gain_margin_db_min is None  # several inputs: no single-loop figure
+    specs = core.DesignSpecs(min_gain_margin_db=6.0, min_phase_margin_deg=30.0)
+    report = core.check_specs(specs, core.closed_loop_poles(plant, gain), margins=margins)
+    gain_check = next(c for c in report.checks if c.name == "min_gain_margin_db")
+    assert gain_check.achieved == pytest.approx(20 * np.log10(1 + margins.disk_margin), rel=1e-12)
+    assert gain_check.achieved >= 20 * np.log10(2) - 1e-6 and gain_check.passed is True
+    assert "disk margin" in gain_check.detail
+    phase_check = next(c for c in report.checks if c.name == "min_phase_margin_deg")
+    assert phase_check.achieved == pytest.approx(margins.disk_phase_margin_deg) and phase_check.passed is True
