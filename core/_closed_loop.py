@@ -397,7 +397,8 @@ def analyze_state_matrix(matrix, sample_time: float | None = None) -> ClosedLoop
     # without being needlessly pessimistic for badly scaled matrices.
     balanced, similarity = scipy.linalg.matrix_balance(M)
     eigenvalues, left_b, right_b = scipy.linalg.eig(balanced, left=True, right=True)
-    estimates = _wilkinson_condition(left_b, right_b) * n * _EPS * float(np.linalg.norm(balanced, 2))
+    largest_singular_value = float(np.linalg.svd(balanced, compute_uv=False)[0])  # ‖D⁻¹MD‖₂
+    estimates = _wilkinson_condition(left_b, right_b) * n * _EPS * largest_singular_value
     right = _unit_columns(similarity @ right_b)
     left = _unit_columns(np.linalg.inv(similarity).T @ left_b)
     condition = _wilkinson_condition(left, right)

@@ -6,6 +6,8 @@ single result, so they can never disagree with each other.
 
 from __future__ import annotations
 
+import threading
+import weakref
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -15,13 +17,7 @@ from ._errors import GainboardError, GainError
 from ._margins import loop_margins
 from ._plant import Plant
 from ._responses import ResponseSet, simulate_responses
-from ._single_entry import (
-    all_entry_stable_intervals,
-    default_entry_range,
-    entry_locus,
-    entry_stable_intervals,
-    pole_sensitivity,
-)
+from ._single_entry import _entry_views, all_entry_stable_intervals, pole_sensitivity
 from ._spec_checks import check_specs, pole_region
 from ._specs import DesignSpecs
 from ._structure import StructureReport, analyze_structure
@@ -111,6 +107,24 @@ class DesignEvaluation:
     messages: tuple[str, ...] = field(default=())
 
 
+# Results that depend on the plant alone (structure, open-loop poles), kept while the
+# plant object lives: a slider move changes K, never the plant, so they are computed
+# once per plant instead of on every update. A Plant is frozen with read-only arrays,
+# so a live entry can never go stale.
+_PLANT_RESULTS: weakref.WeakKeyDictionary = weakref.WeakKeyDictionary()
+_PLANT_RESULTS_LOCK = threading.Lock()
+
+
+def _plant_analysis(plant: Plant) -> tuple[StructureReport, ClosedLoopReport]:
+    with _PLANT_RESULTS_LOCK:
+        cached = _PLANT_RESULTS.get(plant)
+    if cached is None:
+        cached = (analyze_structure(plant), analyze_open_loop(plant))
+        with _PLANT_RESULTS_LOCK:
+            _PLANT_RESULTS[plant] = cached
+    return cached
+
+
 def _check_entry(plant: Plant, entry) -> tuple[int, int]:
     row, col = (int(v) for v in entry)
     m, n = plant.input_count, plant.state_count
@@ -152,8 +166,7 @@ def evaluate_design(plant: Plant, gain, options: EvaluationOptions | None = None
     specs = options.specs if options.specs is not None else plant.specs
     messages: list[str] = []
 
-    structure = analyze_structure(plant)
-    open_loop = analyze_open_loop(plant)
+    structure, open_loop = _plant_analysis(plant)
     closed_loop = analyze_closed_loop(plant, K)
 
     intervals = all_entry_stable_intervals(plant, K) if options.include_all_entry_intervals else {}
@@ -161,9 +174,8 @@ def evaluate_design(plant: Plant, gain, options: EvaluationOptions | None = None
     selected_intervals = selected_locus = sensitivity = None
     if selected is not None:
         row, col = selected
-        selected_intervals = intervals.get(selected) or entry_stable_intervals(plant, K, row, col)
-        low, high = options.entry_range or default_entry_range(plant, K, row, col)
-        selected_locus = entry_locus(plant, K, row, col, low, high)
+        selected_intervals, selected_locus = _entry_views(plant, K, row, col, options.entry_range,
+                                                         intervals.get(selected))
         sensitivity = pole_sensitivity(plant, K, row, col)
 
     band = specs.settling_band if specs is not None else 0.02

@@ -320,10 +320,10 @@ def _crossing_frequencies(function, candidates, grid, accept, upper, floor) -> l
             omega = polish(low, high) or omega
         roots.append(omega)
     values = function(grid)
-    for i in range(grid.size - 1):
-        a, b = values[i], values[i + 1]
-        if not (np.isfinite(a) and np.isfinite(b)) or a * b >= 0:
-            continue
+    # only the few grid intervals with a sign change between finite values are looked at
+    with np.errstate(invalid="ignore", over="ignore"):
+        changes = np.flatnonzero(np.isfinite(values[:-1]) & np.isfinite(values[1:]) & (values[:-1] * values[1:] < 0))
+    for i in changes.tolist():
         if any(grid[i] <= r <= grid[i + 1] for r in roots):
             continue
         root = polish(grid[i], grid[i + 1])

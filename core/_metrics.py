@@ -209,18 +209,39 @@ def _stationary_points(coefficients) -> list[float]:
 
 
 def _bisect(coefficients, level, low, high) -> float:
-    """Root of cubic(s) = level in [low, high], where the cubic is monotone and changes side."""
-    f_low = _cubic(coefficients, low) - level
+    """Root of cubic(s) = level in [low, high], where the cubic is monotone and changes side.
+
+    Newton's method started from the chord and kept inside the shrinking bracket
+    (a step that would leave it bisects instead): the same root as plain bisection to
+    1e-15, in a handful of steps instead of about fifty.
+    """
+    a, b, c, d = coefficients
+    d -= level
+    f_low = ((a * low + b) * low + c) * low + d
+    f_high = ((a * high + b) * high + c) * high + d
+    if f_low == 0.0:
+        return low
+    if f_high == 0.0:
+        return high
+    s = low - f_low * (high - low) / (f_high - f_low)
+    if not low < s < high:
+        s = 0.5 * (low + high)
     for _ in range(60):
-        middle = 0.5 * (low + high)
-        f_middle = _cubic(coefficients, middle) - level
-        if (f_middle > 0.0) == (f_low > 0.0) and f_middle != 0.0:
-            low, f_low = middle, f_middle
+        f = ((a * s + b) * s + c) * s + d
+        if f == 0.0:
+            return s
+        if (f > 0.0) == (f_low > 0.0):
+            low, f_low = s, f
         else:
-            high = middle
-        if high - low <= 1e-15:
-            break
-    return 0.5 * (low + high)
+            high = s
+        slope = (3.0 * a * s + 2.0 * b) * s + c
+        following = s - f / slope if slope != 0.0 else 0.5 * (low + high)
+        if not low < following < high:
+            following = 0.5 * (low + high)
+        if abs(following - s) <= 1e-16 or high - low <= 1e-15:
+            return following
+        s = following
+    return s
 
 
 def _crossing(time, values, slopes, k: int, level: float, last: bool = False, at_samples: bool = False) -> float:
@@ -308,9 +329,10 @@ def settling_time(time, values, slopes, final: float, band_width: float, at_samp
     3.912023
     """
     outside = np.abs(values - final) > band_width
-    if not outside.any():
+    from_end = int(outside[::-1].argmax())
+    last = len(values) - 1 - from_end
+    if not outside[last]:
         return 0.0
-    last = int(np.flatnonzero(outside)[-1])
     if last == len(values) - 1:
         return NAN
     level = final + math.copysign(band_width, values[last] - final)
@@ -325,15 +347,16 @@ def _peak(time, values, slopes, direction: float, at_samples: bool) -> tuple[flo
     its first peak.
     """
     signal = direction * np.asarray(values, dtype=float)
-    top = float(np.max(signal))
-    scale = max(float(np.max(np.abs(signal))), 1e-300)
-    near = signal >= top - 1e-3 * scale
-    local = np.ones_like(near)
-    local[1:] &= signal[1:] >= signal[:-1]
-    local[:-1] &= signal[:-1] >= signal[1:]
-    candidates = np.flatnonzero(near & local)
+    top = float(signal.max())
+    scale = max(abs(top), abs(float(signal.min())), 1e-300)
+    near = np.flatnonzero(signal >= top - 1e-3 * scale)
+    # local maxima among the points near the top (an end point needs only its one neighbour)
+    last = signal.size - 1
+    here = signal[near]
+    local = (here >= signal[np.maximum(near - 1, 0)]) & (here >= signal[np.minimum(near + 1, last)])
+    candidates = near[local]
     if candidates.size == 0:
-        candidates = np.array([int(np.argmax(signal))])
+        candidates = np.array([int(signal.argmax())])
     refined = [_refined_extreme(time, values, slopes, int(k), direction, at_samples) for k in candidates[:50]]
     best = max(direction * value for _, value in refined)
     for t, value in refined:
@@ -344,11 +367,10 @@ def _peak(time, values, slopes, direction: float, at_samples: bool) -> tuple[flo
 
 def _first_reaching(time, values, slopes, start, change, fraction, at_samples=False):
     """First time y has travelled ``fraction`` of ``change`` from ``start`` (nan if never)."""
-    progress = (values - start) / change
-    reached = np.flatnonzero(progress >= fraction)
-    if reached.size == 0:
+    reached = (values - start) / change >= fraction
+    k = int(reached.argmax())
+    if not reached[k]:
         return NAN
-    k = int(reached[0])
     if k == 0:
         return float(time[0])
     return _crossing(time, values, slopes, k - 1, start + fraction * change, at_samples=at_samples)
@@ -408,7 +430,7 @@ def measure_output(
     values = np.asarray(values, dtype=float)
     regulation = kind != "step"
 
-    excursion = max(float(np.max(np.abs(values - values[0]))), abs(float(values[0]) - start))
+    excursion = max(float(np.abs(values - values[0]).max()), abs(float(values[0]) - start))
     if excursion <= noise_floor and (not math.isfinite(final) or abs(final - start) <= noise_floor):
         why = "the output does not move in this response"
         reasons.extend((metric, why) for metric in result)
@@ -420,7 +442,7 @@ def measure_output(
 
     # Peak: regulation → largest magnitude; step → extreme in the direction of the change.
     if regulation:
-        k = int(np.argmax(np.abs(values)))
+        k = int(np.abs(values).argmax())
         direction = 1.0 if values[k] >= 0 else -1.0
     else:
         if math.isfinite(final) and abs(final - start) > NEGLIGIBLE_CHANGE * excursion:
@@ -444,7 +466,7 @@ def measure_output(
         reasons.append(("steady_state_error", target_reason or "this output has no target"))
 
     change = final - start
-    farthest = int(np.argmax(np.abs(values - final)))
+    farthest = int(np.abs(values - final).argmax())
     side = 1.0 if values[farthest] >= final else -1.0
     _, extreme = _refined_extreme(time, values, slopes, farthest, side, at_samples)
     deviation = max(abs(extreme - final), abs(start - final))
@@ -465,7 +487,7 @@ def measure_output(
         else:
             reasons.append(("rise_time", "the output does not reach 90 % of its change within the horizon"))
         direction = 1.0 if change > 0 else -1.0
-        j = int(np.argmax(direction * (values - final)))
+        j = int((direction * (values - final)).argmax())
         _, extreme = _refined_extreme(time, values, slopes, j, direction, at_samples)
         result["overshoot_percent"] = max(0.0, direction * (extreme - final)) / abs(change) * 100.0
     else:

@@ -24,6 +24,7 @@ __all__ = [
     "transition_matrices",
     "augmented_step",
     "propagate_affine",
+    "propagate_many",
     "integral_of_quadratic",
     "SwitchingLoop",
 ]
@@ -40,15 +41,41 @@ _PADE_13 = _pade_coefficients(13)
 #: precision without scaling (Higham, "The scaling and squaring method for the
 #: matrix exponential revisited", SIAM J. Matrix Anal. Appl. 26(4), 2005, Table 2.3).
 _PADE_13_NORM_LIMIT = 5.371920351148152
+#: The same bounds θ_m of Higham 2005 (Table 2.3) for the lower degrees m = 3, 5, 7, 9:
+#: below θ_m the [m/m] approximant has a backward error under the unit roundoff, so the
+#: cheapest degree that covers ‖M‖₁ is as accurate as degree 13 and needs no squaring.
+_LOW_DEGREES = tuple(
+    (limit, degree, _pade_coefficients(degree))
+    for limit, degree in ((1.495585217958292e-2, 3), (2.539398330063230e-1, 5),
+                          (9.504178996162932e-1, 7), (2.097847961257068e0, 9))
+)
+
+
+def _low_degree_pade(A: np.ndarray, degree: int, c: tuple[float, ...]) -> np.ndarray:
+    """[m/m] Padé approximant of e^A for m = 3, 5, 7 or 9 (Higham 2005, Algorithm 2.3)."""
+    k = A.shape[0]
+    A2 = A @ A
+    powers = [A2]
+    for _ in range(1, degree // 2):
+        powers.append(powers[-1] @ A2)  # A⁴, A⁶, A⁸
+    odd_sum = c[1] * np.eye(k)
+    even = c[0] * np.eye(k)
+    for j, power in enumerate(powers, start=1):
+        odd_sum = odd_sum + c[2 * j + 1] * power
+        even = even + c[2 * j] * power
+    odd = A @ odd_sum
+    return np.linalg.solve(even - odd, even + odd)
 
 
 def matrix_exponential(M) -> np.ndarray:
-    """e^M by scaling and squaring with a degree-13 Padé approximant (Higham 2005).
+    """e^M by scaling and squaring with Padé approximants (Higham 2005).
 
-    Written on numpy's small-matrix products and one linear solve because
-    ``scipy.linalg.expm`` on a multithreaded OpenBLAS can stall for milliseconds
-    per call on a busy machine (thread hand-offs inside its compiled Padé step),
-    and the app evaluates these exponentials on every slider move.
+    Small matrices (‖M‖₁ ≤ 2.1, the usual case for one time step of a loop) use the
+    lowest Padé degree of 3, 5, 7 or 9 whose bound θ_m covers ‖M‖₁; larger ones use
+    degree 13 with scaling and squaring. Written on numpy's small-matrix products and
+    one linear solve because ``scipy.linalg.expm`` on a multithreaded OpenBLAS can
+    stall for milliseconds per call on a busy machine (thread hand-offs inside its
+    compiled Padé step), and the app evaluates these exponentials on every slider move.
 
     Parameters
     ----------
@@ -65,9 +92,12 @@ def matrix_exponential(M) -> np.ndarray:
     """
     M = np.asarray(M, dtype=float)
     k = M.shape[0]
-    size = float(np.max(np.sum(np.abs(M), axis=0))) if k else 0.0
+    size = float(np.abs(M).sum(axis=0).max()) if k else 0.0
     if not math.isfinite(size):
         return np.full((k, k), np.nan)
+    for limit, degree, coefficients in _LOW_DEGREES:
+        if size <= limit:
+            return _low_degree_pade(M, degree, coefficients)
     squarings = max(0, math.ceil(math.log2(size / _PADE_13_NORM_LIMIT))) if size > _PADE_13_NORM_LIMIT else 0
     A = M / 2.0**squarings
     c = _PADE_13
@@ -195,6 +225,44 @@ def propagate_affine(step: np.ndarray, start, count: int) -> np.ndarray:
     return trajectory[:, :n]
 
 
+def propagate_many(step: np.ndarray, starts, count: int) -> np.ndarray:
+    """Trajectories z_r[0..count-1] of z[k+1] = S z[k] for several starts at once, by repeated doubling.
+
+    Several responses of one loop share the step map S (their constant forcings are
+    extra augmented states), so one doubling chain serves them all: each doubling
+    is a single product of (filled × r) rows by Sˢᵀ.
+
+    Parameters
+    ----------
+    step : numpy.ndarray, shape (d, d)
+        One-step map.
+    starts : array_like, shape (r, d)
+        Start of each trajectory.
+    count : int
+        Number of grid points (≥ 1).
+
+    Returns
+    -------
+    numpy.ndarray, shape (count, r, d)
+        Overflowing entries of an unstable loop become inf; callers cut at their blow-up threshold.
+    """
+    starts = np.asarray(starts, dtype=float)
+    r, d = starts.shape
+    trajectory = np.empty((count, r, d))
+    trajectory[0] = starts
+    filled = 1
+    power = step
+    with np.errstate(over="ignore", invalid="ignore"):
+        while filled < count:
+            take = min(filled, count - filled)
+            np.matmul(trajectory[:take].reshape(take * r, d), power.T,
+                      out=trajectory[filled : filled + take].reshape(take * r, d))
+            filled += take
+            if filled < count:
+                power = power @ power
+    return trajectory
+
+
 def integral_of_quadratic(generator: np.ndarray, weight: np.ndarray, time_step: float) -> np.ndarray:
     """S = ∫₀ʰ e^{Fτ} W e^{Fᵀτ} dτ, exactly (block exponential plus doubling).
 
@@ -280,7 +348,9 @@ class SwitchingLoop:
         self.sampled = sampled
         self._middle = 0.5 * (high + low)
         self._half = 0.5 * (high - low)
-        self._steps: dict[tuple[int, ...], tuple[np.ndarray, np.ndarray]] = {}
+        self._steps: dict[tuple[int, ...], tuple[np.ndarray, np.ndarray, np.ndarray]] = {}
+        self._law_rows = -np.asarray(K, dtype=float) / self._half[:, None]
+        self._law_constant = (np.asarray(law_offset, dtype=float) - self._middle) / self._half
 
     # -- one pattern of pinned inputs ------------------------------------------------
     def mode_generator(self, pattern) -> tuple[np.ndarray, np.ndarray]:
@@ -308,6 +378,7 @@ class SwitchingLoop:
         return generator, applied
 
     def _step_for(self, pattern: tuple[int, ...]):
+        """(record matrix, record shift, augmented one-step map) of a pattern, built on first use."""
         cached = self._steps.get(pattern)
         if cached is not None:
             return cached
@@ -317,19 +388,35 @@ class SwitchingLoop:
         Phi, increment = step[:n, :n], step[:n, n]
         # Carry the scaled law w = (u_law − middle)/half along with x so that one
         # product per step gives both the next state and the next classification.
-        law_rows = -self.K / self._half[:, None]
-        law_constant = (self.law_offset - self._middle) / self._half
+        law_rows, law_constant = self._law_rows, self._law_constant
         m = self.K.shape[0]
         matrix = np.zeros((n + m, n + m))
         matrix[:n, :n] = Phi
         matrix[n:, :n] = law_rows @ Phi
         shift = np.concatenate([increment, law_rows @ increment + law_constant])
-        self._steps[pattern] = (matrix, shift)
-        return matrix, shift
+        self._steps[pattern] = (matrix, shift, step)
+        return self._steps[pattern]
+
+    @staticmethod
+    def _classify(scaled: np.ndarray) -> np.ndarray:
+        """−1 / 0 / +1 per input from the scaled law w: pinned low (w < −1), free, pinned high (w > 1)."""
+        return (scaled > 1.0).astype(int) - (scaled < -1.0).astype(int)
 
     # -- simulation ---------------------------------------------------------------------
+    #: Shortest run of steps propagated as one segment; shorter runs go step by step.
+    _SHORTEST_SEGMENT = 8
+    #: Steps taken one by one after a segment that ended within a few steps (a chattering input).
+    _STEPWISE_RUN = 32
+
     def run(self, start, count: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """Simulate ``count`` grid points from state ``start``.
+
+        While the pattern of pinned inputs stays the same the loop is linear, so a
+        stretch of steps is propagated at once by repeated doubling (a few matrix
+        products instead of one Python step per grid point); the stretch is cut at
+        the first grid point whose classification differs, and the simulation goes
+        on from there with the new pattern. Where the pattern changes every few
+        steps (an input chattering at its limit) it steps one grid point at a time.
 
         Returns
         -------
@@ -342,30 +429,69 @@ class SwitchingLoop:
             that starts at each grid point (the classification the loop used).
         """
         n, m = self.B.shape
-        free = (0,) * m
         record = np.empty((count, n + m))
         record[0, :n] = start
-        record[0, n:] = (-self.K @ start + self.law_offset - self._middle) / self._half
+        record[0, n:] = self._law_rows @ np.asarray(start, dtype=float) + self._law_constant
+        k = 0
+        window = 4 * self._SHORTEST_SEGMENT
+        with np.errstate(over="ignore", invalid="ignore"):
+            while k < count - 1:
+                length = min(window, count - 1 - k)
+                if length < self._SHORTEST_SEGMENT:
+                    k = self._run_stepwise(record, k, count - 1 - k)
+                    break
+                taken = self._run_segment(record, k, length)
+                k += taken
+                if taken < length:  # the pattern changed inside the stretch
+                    window = max(4 * self._SHORTEST_SEGMENT, 2 * taken)
+                    if taken < 4 and k < count - 1:
+                        k = self._run_stepwise(record, k, min(self._STEPWISE_RUN, count - 1 - k))
+                else:
+                    window *= 2
+        scaled = record[:, n:]
+        patterns = self._classify(scaled)
+        law = scaled * self._half + self._middle
+        return record[:, :n].copy(), law, patterns
+
+    def _run_segment(self, record: np.ndarray, k: int, length: int) -> int:
+        """Propagate up to ``length`` steps from row k under row k's pattern; return the steps kept."""
+        n = self.A.shape[0]
+        current = record[k]
+        pattern = self._classify(current[n:])
+        _, _, step = self._step_for(tuple(pattern.tolist()))
+        start = np.empty(n + 1)
+        start[:n] = current[:n]
+        start[n] = 1.0
+        block = propagate_many(step, start[None, :], length + 1)[1:, 0, :n]
+        scaled = block @ self._law_rows.T + self._law_constant
+        # rows stay valid up to and including the first one whose classification differs
+        differs = np.any(self._classify(scaled) != pattern, axis=1)
+        taken = int(differs.argmax()) + 1 if differs.any() else length
+        record[k + 1 : k + 1 + taken, :n] = block[:taken]
+        record[k + 1 : k + 1 + taken, n:] = scaled[:taken]
+        return taken
+
+    def _run_stepwise(self, record: np.ndarray, k: int, steps: int) -> int:
+        """Take ``steps`` single steps from row k (one small product each); return the new row index."""
+        n = self.A.shape[0]
+        m = self.K.shape[0]
+        free = (0,) * m
         dot = np.dot
         step_for = self._step_for
         cached = self._steps
-        free_step = step_for(free)
+        free_matrix, free_shift, _ = step_for(free)
         # A plain loop: each step is one small matrix product and a few float
-        # comparisons (about 2 µs), which beats any vectorised scheme once the
-        # pattern of pinned inputs can change at every step.
-        with np.errstate(over="ignore", invalid="ignore"):
-            for k in range(count - 1):
-                current = record[k]
-                scaled_law = current[n:].tolist()
-                if max(scaled_law) > 1.0 or min(scaled_law) < -1.0:
-                    pattern = tuple(1 if w > 1.0 else (-1 if w < -1.0 else 0) for w in scaled_law)
-                    matrix, shift = cached.get(pattern) or step_for(pattern)
-                else:
-                    matrix, shift = free_step
-                following = record[k + 1]
-                dot(matrix, current, out=following)
-                following += shift
-        scaled = record[:, n:]
-        patterns = (scaled > 1.0).astype(int) - (scaled < -1.0).astype(int)
-        law = scaled * self._half + self._middle
-        return record[:, :n].copy(), law, patterns
+        # comparisons (about 2 µs), which beats any vectorised scheme while the
+        # pattern of pinned inputs changes every few steps.
+        for j in range(k, k + steps):
+            current = record[j]
+            scaled_law = current[n:].tolist()
+            if max(scaled_law) > 1.0 or min(scaled_law) < -1.0:
+                pattern = tuple(1 if w > 1.0 else (-1 if w < -1.0 else 0) for w in scaled_law)
+                matrix, shift, _ = cached.get(pattern) or step_for(pattern)
+            else:
+                matrix, shift = free_matrix, free_shift
+            following = record[j + 1]
+            dot(matrix, current, out=following)
+            following += shift
+        return k + steps

@@ -39,7 +39,7 @@ from ._metrics import (
     measure_output,
 )
 from ._plant import Plant
-from ._propagation import SwitchingLoop, augmented_step, integral_of_quadratic, propagate_affine
+from ._propagation import SwitchingLoop, integral_of_quadratic, matrix_exponential, propagate_many
 
 __all__ = [
     "Response",
@@ -325,12 +325,20 @@ def _steady_state_gain(plant: Plant, K: np.ndarray):
     return gain, output_of_state, to_state, condition
 
 
+def _spectral_norm(matrix: np.ndarray) -> float:
+    """‖M‖₂; for a single row or column that is its Euclidean length (no SVD needed)."""
+    if min(matrix.shape) <= 1:
+        return float(np.sqrt(np.sum(matrix * matrix)))
+    return float(np.linalg.norm(matrix, 2))
+
+
 def _prefilter_with_condition(plant: Plant, K: np.ndarray):
+    """(N, condition number of the steady-state gain, (I − A + BK)⁻¹B or −(A − BK)⁻¹B)."""
     gain, output_of_state, to_state, _ = _steady_state_gain(plant, K)
     q, m = gain.shape
     singular_values = np.linalg.svd(gain, compute_uv=False)
-    natural_size = np.linalg.norm(output_of_state, 2) * np.linalg.norm(to_state, 2) + np.linalg.norm(
-        plant.D[list(plant.tracked_outputs)], 2
+    natural_size = _spectral_norm(output_of_state) * _spectral_norm(to_state) + _spectral_norm(
+        plant.D[list(plant.tracked_outputs)]
     )
     tolerance = 1e3 * max(q, m) * np.finfo(float).eps * natural_size
     if singular_values[-1] <= tolerance:
@@ -348,7 +356,7 @@ def _prefilter_with_condition(plant: Plant, K: np.ndarray):
         # fewer tracked outputs than inputs: the smallest prefilter (minimum norm) that
         # gives gain @ N = I, i.e. the pseudo-inverse of a full-row-rank gain
         prefilter = np.linalg.pinv(gain)
-    return prefilter, float(singular_values[0] / singular_values[-1])
+    return prefilter, float(singular_values[0] / singular_values[-1]), to_state
 
 
 def reference_prefilter(plant: Plant, K) -> np.ndarray:
@@ -389,7 +397,7 @@ def reference_prefilter(plant: Plant, K) -> np.ndarray:
     [[4.0]]
     """
     K = plant.check_gain(K)
-    prefilter, _ = _prefilter_with_condition(plant, K)
+    prefilter, _, _ = _prefilter_with_condition(plant, K)
     return _read_only(prefilter)
 
 
@@ -413,6 +421,8 @@ def _blow_up_index(states: np.ndarray, threshold: float):
     if threshold <= 0.0:
         return None
     with np.errstate(invalid="ignore"):
+        if np.abs(states).max(initial=0.0) <= threshold:  # the usual case: nothing to cut
+            return None
         size = np.max(np.abs(states), axis=1)
     bad = ~(size <= threshold)
     if not bad.any():
@@ -420,16 +430,10 @@ def _blow_up_index(states: np.ndarray, threshold: float):
     return int(np.argmax(bad))
 
 
-def _natural_size(ctx: _Context, start, forcing) -> float:
+def _natural_size(ctx: _Context, start, forcing, equilibrium) -> float:
     """Size a response should stay well within: its start, its equilibrium, its forcing."""
     size = float(np.max(np.abs(start)))
     if np.any(forcing != 0.0):
-        system = (np.eye(ctx.loop.shape[0]) - ctx.loop) if ctx.sampled else -ctx.loop
-        try:
-            with np.errstate(all="ignore"):
-                equilibrium = np.linalg.solve(system, forcing)
-        except np.linalg.LinAlgError:  # pole exactly at s = 0 / z = 1: the state ramps
-            equilibrium = np.full_like(forcing, np.nan)
         if np.all(np.isfinite(equilibrium)):
             size = max(size, float(np.max(np.abs(equilibrium))))
         steps = ctx.count - 1
@@ -437,20 +441,60 @@ def _natural_size(ctx: _Context, start, forcing) -> float:
     return size
 
 
-def _energy(ctx: _Context, generator, applied, states, law_values, valid: int) -> np.ndarray:
-    """∫u² dt per input over the first ``valid`` grid points (exact for continuous loops).
+def _equilibria(ctx: _Context, forcings: np.ndarray) -> np.ndarray:
+    """Equilibrium of each forcing (rows of ``forcings``): 0 = loop x + f, or x = loop x + f.
 
-    Continuous: u = G z with z = [x; 1] and z' = F z on every step, so the energy is
-    diag(G S Gᵀ) with S = ∫₀ʰ e^{Fτ} (Σₖ z[k] z[k]ᵀ) e^{Fᵀτ} dτ. Sampled: T Σ u[k]².
+    One solve for all of them; rows of ``nan`` where the loop has a pole exactly at
+    s = 0 (z = 1), so that the state ramps instead of settling. A zero forcing has
+    the zero equilibrium.
     """
-    if valid < 2:
-        return np.zeros(law_values.shape[1])
-    if ctx.sampled:
-        return ctx.time_step * np.sum(law_values[: valid - 1] ** 2, axis=0)
-    augmented = np.hstack([states[: valid - 1], np.ones((valid - 1, 1))])
-    weight = augmented.T @ augmented
-    integral = integral_of_quadratic(generator, weight, ctx.time_step)
-    return np.einsum("ij,jk,ik->i", applied, integral, applied)
+    equilibria = np.zeros_like(forcings)
+    forced = np.flatnonzero(np.any(forcings != 0.0, axis=1))
+    if forced.size:
+        n = ctx.loop.shape[0]
+        system = (np.eye(n) - ctx.loop) if ctx.sampled else -ctx.loop
+        try:
+            with np.errstate(all="ignore"):
+                equilibria[forced] = np.linalg.solve(system, forcings[forced].T).T
+        except np.linalg.LinAlgError:  # pole exactly at s = 0 / z = 1: the state ramps
+            equilibria[forced] = np.nan
+    return equilibria
+
+
+class _Energies:
+    """∫u² dt of every input over the first grid points of a response (exact for continuous loops).
+
+    All responses of one design share the augmented generator F = [[A − BK, f₁ … f_r], [0, 0]]
+    (state z = [x; e_r] for response r) and the applied input u = G z with
+    G = [−K, u₀₁ … u₀_r]. Over one step the energy of input i is z[k]ᵀ Q_i z[k] with
+    Q_i = ∫₀ʰ e^{Fᵀτ} g_iᵀ g_i e^{Fτ} dτ, so a response's energy is
+    trace(Q_i Σₖ z[k] z[k]ᵀ): one block exponential per input serves all responses.
+    Sampled loops hold u over each period: T Σ u[k]².
+    """
+
+    def __init__(self, ctx: _Context, generator: np.ndarray, applied: np.ndarray):
+        self.ctx = ctx
+        self.generator = generator
+        self.applied = applied
+        self._weights = None
+
+    def _quadratic_weights(self) -> np.ndarray:
+        if self._weights is None:
+            generator_t = self.generator.T
+            self._weights = np.stack([
+                integral_of_quadratic(generator_t, np.outer(row, row), self.ctx.time_step) for row in self.applied
+            ])
+        return self._weights
+
+    def of(self, trajectory: np.ndarray, inputs: np.ndarray, valid: int) -> np.ndarray:
+        """Energies (m,) from the augmented trajectory (count, d) and inputs (count, m)."""
+        if valid < 2:
+            return np.zeros(inputs.shape[1])
+        if self.ctx.sampled:
+            return self.ctx.time_step * np.sum(inputs[: valid - 1] ** 2, axis=0)
+        points = trajectory[: valid - 1]
+        weight = points.T @ points
+        return np.einsum("ijk,jk->i", self._quadratic_weights(), weight)
 
 
 def _nan_metrics(plant: Plant, reason: str):
@@ -471,8 +515,11 @@ def _nan_metrics(plant: Plant, reason: str):
 def _measure_all(ctx, kind, time, outputs, output_slopes, starts, finals, targets, final_reason, final_note,
                  target_reasons):
     plant = ctx.plant
-    finite_outputs = outputs[np.all(np.isfinite(outputs), axis=1)]
-    largest = float(np.max(np.abs(finite_outputs))) if finite_outputs.size else 0.0
+    if np.isfinite(outputs).all():
+        largest = float(np.abs(outputs).max()) if outputs.size else 0.0
+    else:
+        finite_outputs = outputs[np.all(np.isfinite(outputs), axis=1)]
+        largest = float(np.max(np.abs(finite_outputs))) if finite_outputs.size else 0.0
     if np.any(np.isfinite(finals)):
         largest = max(largest, float(np.nanmax(np.abs(finals))))
     noise_floor = 1e-10 * largest
@@ -498,32 +545,35 @@ def _measure_all(ctx, kind, time, outputs, output_slopes, starts, finals, target
     )
 
 
-def _simulate_one(ctx: _Context, kind: str, start, law_offset, outside_forcing, targets, target_reasons, description):
+def _simulate_one(ctx: _Context, kind: str, trajectory, energies: _Energies, start, law_offset, outside_forcing,
+                  forcing, equilibrium, targets, target_reasons, description):
     plant, K, loop = ctx.plant, ctx.K, ctx.loop
-    B, C, D = plant.B, plant.C, plant.D
+    C, D = plant.C, plant.D
     n = plant.state_count
-    forcing = B @ law_offset + outside_forcing
-    step_map = augmented_step(loop, forcing, ctx.time_step, ctx.sampled)
-    states = propagate_affine(step_map, start, ctx.count)
+    states = trajectory[:, :n]
 
-    threshold = BLOW_UP_FACTOR * _natural_size(ctx, start, forcing)
+    threshold = BLOW_UP_FACTOR * _natural_size(ctx, start, forcing, equilibrium)
     diverged_at = None
     cut = _blow_up_index(states, threshold)
     if cut is not None:
         keep = cut + 1 if np.all(np.isfinite(states[cut])) else max(cut, 2)
         states = states[:keep]
+        trajectory = trajectory[:keep]
         diverged_at = float(cut * ctx.time_step)
+    states = np.ascontiguousarray(states)
     count = states.shape[0]
     time = ctx.time_step * np.arange(count)
 
     inputs = law_offset - states @ K.T
     outputs = states @ C.T + inputs @ D.T
     if ctx.sampled:
-        state_slopes = output_slopes = input_slopes = None
+        output_slopes = input_slopes = None
     else:
-        state_slopes = states @ loop.T + forcing
-        output_slopes = state_slopes @ (C - D @ K).T
-        input_slopes = -state_slopes @ K.T
+        # x' = loop x + f, so y' = (C − DK) x' and u' = −K x': one product with the (p + m)×n
+        # maps (C − DK)·loop and −K·loop instead of forming x' (count × n) first
+        slope_maps = np.vstack([C - D @ K, -K])
+        slopes = states @ (slope_maps @ loop).T + slope_maps @ forcing
+        output_slopes, input_slopes = slopes[:, : plant.output_count], slopes[:, plant.output_count :]
 
     # exact steady state of the linear loop
     starts = (outputs[0] if kind == "initial" else np.zeros(plant.output_count))
@@ -532,8 +582,6 @@ def _simulate_one(ctx: _Context, kind: str, start, law_offset, outside_forcing, 
         finals = np.full(plant.output_count, NAN)
         final_reason = ctx.no_steady_state_reason
     elif np.any(forcing != 0.0):
-        system = (np.eye(n) - loop) if ctx.sampled else -loop
-        equilibrium = np.linalg.solve(system, forcing)
         finals = C @ equilibrium + D @ (law_offset - K @ equilibrium)
     else:
         finals = np.zeros(plant.output_count)
@@ -543,14 +591,10 @@ def _simulate_one(ctx: _Context, kind: str, start, law_offset, outside_forcing, 
     else:
         output_metrics = _measure_all(ctx, kind, time, outputs, output_slopes, starts, finals, targets,
                                       final_reason, "", target_reasons)
-        generator = np.zeros((n + 1, n + 1))
-        generator[:n, :n] = loop
-        generator[:n, n] = forcing
-        applied = np.hstack([-K, law_offset[:, None]])
-        energies = _energy(ctx, generator, applied, states, inputs, count)
+        energy = energies.of(trajectory, inputs, count)
         input_metrics = tuple(
             measure_input(time, inputs[:, i], None if input_slopes is None else input_slopes[:, i],
-                          energy=float(energies[i]), index=i, name=name, at_samples=ctx.sampled)
+                          energy=float(energy[i]), index=i, name=name, at_samples=ctx.sampled)
             for i, name in enumerate(plant.input_names)
         )
 
@@ -635,9 +679,11 @@ def _simulate_saturated(ctx, kind, time, states, inputs, outputs, output_metrics
         energies = ctx.time_step * np.sum(sat_inputs[: max(valid - 1, 0)] ** 2, axis=0)
     elif valid >= 2:
         used = patterns[: valid - 1]
-        for pattern in np.unique(used, axis=0):
-            rows = np.flatnonzero(np.all(used == pattern, axis=1))
-            generator, applied = switching.mode_generator(pattern)
+        # one whole number per pattern (digits −1/0/+1 in base 3), to group the steps by pattern
+        codes = (used + 1) @ (3 ** np.arange(m))
+        for code in np.unique(codes):
+            rows = np.flatnonzero(codes == code)
+            generator, applied = switching.mode_generator(used[rows[0]])
             augmented = np.hstack([sat_states[rows], np.ones((rows.size, 1))])
             integral = integral_of_quadratic(generator, augmented.T @ augmented, ctx.time_step)
             energies = energies + np.einsum("ij,jk,ik->i", applied, integral, applied)
@@ -803,34 +849,60 @@ def simulate_responses(
     rest_targets = np.zeros(p)
     no_reasons = ("",) * p
 
-    initial = _simulate_one(
-        ctx, "initial", start, zeros_m, zeros_n, rest_targets, no_reasons,
-        "regulation from the initial state with u = −Kx",
-    )
-
     prefilter = None
     condition = NAN
     step_reason = ""
-    step_response = None
     try:
-        prefilter, condition = _prefilter_with_condition(plant, K)
+        prefilter, condition, _ = _prefilter_with_condition(plant, K)
     except AnalysisError as error:
         step_reason = str(error)
+
+    # (kind, start, law offset u₀, outside forcing, targets, target reasons, description)
+    plans = [("initial", start, zeros_m, zeros_n, rest_targets, no_reasons,
+              "regulation from the initial state with u = −Kx")]
     if prefilter is not None:
         step_targets = np.full(p, NAN)
         step_targets[list(tracked)] = reference_values
         target_reasons = tuple(
             "" if i in tracked else "this output is not tracked, so it has no reference" for i in range(p)
         )
-        step_response = _simulate_one(
-            ctx, "step", np.zeros(n), prefilter @ reference_values, zeros_n, step_targets, target_reasons,
-            "reference step on the tracked outputs with u = −Kx + N r",
-        )
+        plans.append(("step", zeros_n, prefilter @ reference_values, zeros_n, step_targets, target_reasons,
+                      "reference step on the tracked outputs with u = −Kx + N r"))
+    plans.append(("disturbance", zeros_n, zeros_m, plant.disturbance_matrix @ np.asarray(plant.disturbance_step),
+                  rest_targets, no_reasons, "disturbance step while regulating with u = −Kx"))
 
-    disturbance = _simulate_one(
-        ctx, "disturbance", np.zeros(n), zeros_m, plant.disturbance_matrix @ np.asarray(plant.disturbance_step),
-        rest_targets, no_reasons, "disturbance step while regulating with u = −Kx",
-    )
+    # All responses share the loop: response r is z = [x; e_r] of one augmented system
+    # whose extra states carry the constant forcings, so one matrix exponential and one
+    # doubling chain give every trajectory exactly at the grid points.
+    count_r = len(plans)
+    forcings = np.array([plant.B @ law + outside for _, _, law, outside, _, _, _ in plans])
+    equilibria = _equilibria(ctx, forcings)
+    size = n + count_r
+    generator = np.zeros((size, size))
+    generator[:n, :n] = loop
+    generator[:n, n:] = forcings.T
+    if sampled:
+        step_map = generator.copy()
+        step_map[n:, n:] = np.eye(count_r)
+    else:
+        step_map = matrix_exponential(generator * step)
+        # the constant states stay exactly constant through the products
+        step_map[n:, :] = 0.0
+        step_map[n:, n:] = np.eye(count_r)
+    starts = np.zeros((count_r, size))
+    starts[:, n:] = np.eye(count_r)
+    starts[0, :n] = start
+    trajectories = propagate_many(step_map, starts, count)
+    applied = np.zeros((m, size))
+    applied[:, :n] = -K
+    applied[:, n:] = np.array([law for _, _, law, _, _, _, _ in plans]).T
+    energies = _Energies(ctx, generator, applied)
+
+    results = {}
+    for r, (kind, first_state, law, outside, targets, reasons, description) in enumerate(plans):
+        results[kind] = _simulate_one(ctx, kind, trajectories[:, r, :], energies, first_state, law, outside,
+                                      forcings[r], equilibria[r], targets, reasons, description)
+    initial, step_response, disturbance = results["initial"], results.get("step"), results["disturbance"]
 
     return ResponseSet(
         initial=initial,

@@ -316,7 +316,8 @@ def _poles_and_counts(family: RankOneFamily, values: np.ndarray) -> tuple[np.nda
     if o:
         matrices = family.moving_closed_loop(values)
         moving = np.linalg.eigvals(matrices)
-        tolerances = np.array([margin_tolerance(float(norm), o) for norm in np.linalg.norm(matrices, axis=(1, 2))])
+        # margin_tolerance for each matrix at once: 100·o·eps·max(‖M‖_F, eps)
+        tolerances = 100.0 * max(o, 1) * _EPS * np.maximum(np.linalg.norm(matrices, axis=(1, 2)), _EPS)
         counts += np.count_nonzero(boundary_distance(moving, family.sampled) >= -tolerances[:, None], axis=1)
     else:
         moving = np.zeros((values.size, 0), dtype=complex)
@@ -736,7 +737,11 @@ def entry_locus(plant: Plant, K, row: int, col: int, low: float, high: float) ->
     gain, row, col = _checked_entry(plant, K, row, col)
     low, high = _checked_range(low, high, f"sweep of {_entry_label(plant, row, col)}")
     family = _entry_family(plant, gain, row, col)
-    analysis = _analyze_family(plant, family, row, col)
+    return _locus_of_family(plant, family, _analyze_family(plant, family, row, col), row, col, low, high)
+
+
+def _locus_of_family(plant: Plant, family: RankOneFamily, analysis: StableIntervals, row: int, col: int,
+                     low: float, high: float) -> EntryLocus:
     inside = _crossings_inside(analysis, low, high)
     sampled = adaptive_locus(family.poles, low, high, [family.current_value] + [c.gain for c in inside])
     return EntryLocus(
@@ -1030,7 +1035,10 @@ def default_entry_range(plant: Plant, K, row: int, col: int) -> tuple[float, flo
     """
     gain, row, col = _checked_entry(plant, K, row, col)
     family = _entry_family(plant, gain, row, col)
-    analysis = _analyze_family(plant, family, row, col)
+    return _range_of_family(family, _analyze_family(plant, family, row, col))
+
+
+def _range_of_family(family: RankOneFamily, analysis: StableIntervals) -> tuple[float, float]:
     current = family.current_value
     width = max(3.0 * abs(current), family.gain_scale)
     anchors = [current - width, current + width]
@@ -1045,3 +1053,25 @@ def default_entry_range(plant: Plant, K, row: int, col: int) -> tuple[float, flo
     low, high = min(anchors), max(anchors)
     pad = 0.1 * (high - low)
     return (low - pad, high + pad)
+
+
+# ---------------------------------------------------------------------------
+# Everything about one entry at once (for evaluate_design)
+# ---------------------------------------------------------------------------
+def _entry_views(plant: Plant, K, row: int, col: int, entry_range=None,
+                intervals: StableIntervals | None = None) -> tuple[StableIntervals, EntryLocus]:
+    """Stable intervals and locus of one entry from a single analysis of its family.
+
+    Same results as :func:`entry_stable_intervals` and :func:`entry_locus` over
+    ``entry_range`` (or :func:`default_entry_range` when ``None``), but the family
+    is reduced and its crossings found once instead of three times. ``intervals``
+    may pass in an analysis already made for the same plant, K and entry.
+    """
+    gain, row, col = _checked_entry(plant, K, row, col)
+    family = _entry_family(plant, gain, row, col)
+    analysis = intervals if intervals is not None else _analyze_family(plant, family, row, col)
+    if entry_range is None:
+        low, high = _range_of_family(family, analysis)
+    else:
+        low, high = _checked_range(*entry_range, f"sweep of {_entry_label(plant, row, col)}")
+    return analysis, _locus_of_family(plant, family, analysis, row, col, low, high)

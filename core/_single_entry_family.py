@@ -32,6 +32,8 @@ from functools import cached_property
 
 import numpy as np
 import scipy.linalg
+from scipy.linalg.lapack import dgehrd as _gehrd
+from scipy.linalg.lapack import dorghr as _orghr
 
 __all__: list[str] = []  # private helpers, nothing re-exported
 
@@ -68,6 +70,24 @@ class KrylovReduction:
         return self.reduced[self.size :, self.size :]
 
 
+def _hessenberg_with_basis(matrix: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """(H, Q) with Qᵀ·matrix·Q = H upper Hessenberg, Q e1 = e1: LAPACK gehrd + orghr.
+
+    The same two LAPACK calls as ``scipy.linalg.hessenberg(matrix, calc_q=True)``
+    without its per-call checks and workspace query (a block size of 32 is LAPACK's
+    own choice for these routines), since every gain entry needs one or two of them.
+    """
+    n = matrix.shape[0]
+    work = 32 * n
+    reduced, reflectors, info = _gehrd(matrix, lo=0, hi=n - 1, lwork=work)
+    if info != 0:  # cannot happen for a finite matrix; fall back to the checked routine
+        return scipy.linalg.hessenberg(matrix, calc_q=True)
+    basis, info = _orghr(reduced, reflectors, lo=0, hi=n - 1, lwork=work)
+    if info != 0:
+        return scipy.linalg.hessenberg(matrix, calc_q=True)
+    return np.triu(reduced, -1), basis
+
+
 def krylov_reduction(matrix: np.ndarray, vector: np.ndarray, scale: float, vector_scale: float) -> KrylovReduction:
     """Orthogonal reduction of (matrix, vector) to Hessenberg form with the vector along e1.
 
@@ -89,7 +109,7 @@ def krylov_reduction(matrix: np.ndarray, vector: np.ndarray, scale: float, vecto
     reflector = np.eye(n) - 2.0 * np.outer(reflector_vector, reflector_vector)
     rotated = reflector @ matrix @ reflector
     if n > 2:
-        hessenberg, inner = scipy.linalg.hessenberg(rotated, calc_q=True)
+        hessenberg, inner = _hessenberg_with_basis(rotated)
     else:
         hessenberg, inner = rotated, np.eye(n)
     transform = reflector @ inner
@@ -143,22 +163,30 @@ class RankOneFamily:
             return max(abs(self.current_value), 1.0)
         return 1.0 / (self.direction_weight * self.pole_scale)
 
+    @cached_property
+    def _weighted_outer(self) -> np.ndarray:
+        return np.outer(self.moving_input, self.moving_output) * self.direction_weight
+
     def moving_closed_loop(self, values) -> np.ndarray:
         """Moving part M − (v − v0)·w·bn·cnᵀ for each v; shape (len(values), o, o)."""
-        values = np.atleast_1d(np.asarray(values, dtype=float))
-        outer = np.outer(self.moving_input, self.moving_output) * self.direction_weight
-        shifts = values - self.current_value
-        return self.moving_matrix[None, :, :] - shifts[:, None, None] * outer[None, :, :]
+        shifts = np.asarray(values, dtype=float).reshape(-1) - self.current_value
+        return self.moving_matrix - shifts[:, None, None] * self._weighted_outer
 
     def poles(self, values) -> np.ndarray:
-        """All closed-loop poles for each v; shape (len(values), n); moving poles first."""
-        values = np.atleast_1d(np.asarray(values, dtype=float))
+        """All closed-loop poles for each v; shape (len(values), n); moving poles first.
+
+        Called once per round of the adaptive locus with every new sample at once
+        (one batched eigenvalue call), so it is kept free of per-call set-up.
+        """
+        values = np.asarray(values, dtype=float).reshape(-1)
         if self.has_effect:
-            moving = np.linalg.eigvals(self.moving_closed_loop(values))
+            moving = np.linalg.eigvals(self.moving_closed_loop(values)).astype(complex, copy=False)
+            if not self.fixed_poles.size:
+                return moving
         else:
             moving = np.zeros((values.size, 0), dtype=complex)
         fixed = np.broadcast_to(self.fixed_poles, (values.size, self.fixed_poles.size))
-        return np.concatenate([moving.astype(complex), fixed], axis=1)
+        return np.concatenate([moving, fixed], axis=1)
 
 
 def reduce_input(closed_loop: np.ndarray, direction_input: np.ndarray) -> KrylovReduction:
@@ -492,18 +520,12 @@ def boundary_is_everywhere(family: RankOneFamily) -> bool:
     bordered = _bordered_matrices(family, points)
     unit = np.zeros((points.size, family.order + 1, 1), dtype=complex)
     unit[:, -1, 0] = 1.0
-    conclusive = 0
-    for matrix, rhs in zip(bordered, unit):
-        try:
-            t = np.linalg.solve(matrix, rhs)[-1, 0]
-        except np.linalg.LinAlgError:
-            continue
-        if not np.isfinite(t) or t == 0.0:
-            continue
-        conclusive += 1
-        if abs(t.imag) > 1e4 * max(family.order, 1) * _EPS * abs(t):
-            return False
-    return conclusive >= 2
+    with np.errstate(all="ignore"):
+        t = _solve_each(bordered, unit)[:, -1, 0]  # a singular point gives nan: inconclusive
+    conclusive = np.isfinite(t) & (t != 0.0)
+    if np.any(np.abs(t[conclusive].imag) > 1e4 * max(family.order, 1) * _EPS * np.abs(t[conclusive])):
+        return False
+    return int(np.count_nonzero(conclusive)) >= 2
 
 
 def boundary_points(family: RankOneFamily) -> list[BoundaryPoint]:
