@@ -19,6 +19,7 @@ import numpy as np
 import scipy.linalg
 import scipy.optimize
 
+from ._arrays import read_only
 from ._errors import AnalysisError
 
 __all__ = [
@@ -35,12 +36,6 @@ __all__ = [
 ]
 
 _EPS = np.finfo(float).eps
-
-
-def _read_only(array) -> np.ndarray:
-    out = np.array(array, copy=True)
-    out.setflags(write=False)
-    return out
 
 
 def _as_pole_array(poles, what: str = "poles") -> np.ndarray:
@@ -410,15 +405,15 @@ def analyze_state_matrix(matrix, sample_time: float | None = None) -> ClosedLoop
         margin = float(1.0 - np.max(np.abs(poles)))
     taus = [d.time_constant for d in descriptions]
     return ClosedLoopReport(
-        poles=_read_only(poles),
+        poles=read_only(poles),
         descriptions=descriptions,
         stable=bool(margin > 0.0),
         stability_margin=margin,
         slowest_time_constant=float(max(taus)),
         fastest_time_constant=float(min(taus)),
         eigenvector_condition=_eigenvector_condition(right),
-        pole_condition_numbers=_read_only(condition[order]),
-        pole_error_estimates=_read_only(estimates[order]),
+        pole_condition_numbers=read_only(condition[order]),
+        pole_error_estimates=read_only(estimates[order]),
         sample_time=T,
     )
 

@@ -26,12 +26,14 @@ functional-safety standards and licensed engineering practice.
 
 from __future__ import annotations
 
+from functools import partial
 import math
 from dataclasses import dataclass
 
 import numpy as np
 import scipy.linalg
 
+from ._arrays import read_only
 from ._errors import AnalysisError, GainError
 from ._plant import Plant
 
@@ -290,10 +292,7 @@ class IntegralActionResponse:
     steady_state_error_disturbance: np.ndarray | None
 
 
-def _read_only(array) -> np.ndarray:
-    out = np.array(array, dtype=float, copy=True)
-    out.setflags(write=False)
-    return out
+_read_only = partial(read_only, dtype=float)
 
 
 def integral_step_response(

@@ -25,6 +25,8 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.linalg
 
+from ._arrays import read_only
+from ._closed_loop import sort_poles
 from ._errors import AnalysisError
 from ._plant import Plant
 
@@ -70,19 +72,6 @@ class LqrResult:
     N: np.ndarray
     weights_source: str
     riccati_residual: float
-
-
-def _read_only(array) -> np.ndarray:
-    out = np.array(array, copy=True)
-    out.setflags(write=False)
-    return out
-
-
-def _sorted_poles(poles: np.ndarray) -> np.ndarray:
-    """Sort by real part, then |imaginary part|, with each conjugate pair adjacent (negative first)."""
-    poles = np.asarray(poles, dtype=complex)
-    order = np.lexsort((poles.imag, np.abs(poles.imag), poles.real))
-    return poles[order]
 
 
 def _positive_ranges(values, count: int, what: str, names) -> np.ndarray:
@@ -416,7 +405,7 @@ def design_lqr(plant: Plant, Q=None, R=None, N=None, *, state_ranges=None, input
         K = np.linalg.solve(R + B.T @ P @ B, B.T @ P @ A + N.T)
     else:
         K = np.linalg.solve(R, B.T @ P + N.T)
-    poles = _sorted_poles(np.linalg.eigvals(A - B @ K))
+    poles = sort_poles(np.linalg.eigvals(A - B @ K))
     closed_loop_scale = max(np.linalg.norm(A - B @ K, 2), np.finfo(float).tiny)
     if sampled:
         unstable = np.max(np.abs(poles)) >= 1.0 - 1e3 * n * _EPS
@@ -430,12 +419,12 @@ def design_lqr(plant: Plant, Q=None, R=None, N=None, *, state_ranges=None, input
         )
     residual = _riccati_residual(A, B, Q, R, N, P, sampled)
     return LqrResult(
-        gain=_read_only(K),
-        riccati_solution=_read_only(P),
-        closed_loop_poles=_read_only(poles),
-        Q=_read_only(Q),
-        R=_read_only(R),
-        N=_read_only(N),
+        gain=read_only(K),
+        riccati_solution=read_only(P),
+        closed_loop_poles=read_only(poles),
+        Q=read_only(Q),
+        R=read_only(R),
+        N=read_only(N),
         weights_source=weights_source,
         riccati_residual=residual,
     )

@@ -29,6 +29,7 @@ import numpy as np
 import scipy.linalg
 import scipy.signal
 
+from ._arrays import read_only
 from ._closed_loop import (
     _default_conjugate_tolerance,
     _matching_indices,
@@ -84,12 +85,6 @@ _HESSENBERG = "single-input Hessenberg method (Ackermann's formula in orthogonal
 _EIGENVECTOR_ONE_INPUT = "eigenvector method for one input (scipy place_poles)"
 _ROBUST_YT = "robust eigenvector method (Kautsky–Nichols–Van Dooren with the Tits–Yang update, scipy place_poles)"
 _ROBUST_KNV0 = "robust eigenvector method (Kautsky–Nichols–Van Dooren method 0, scipy place_poles)"
-
-
-def _read_only(array) -> np.ndarray:
-    out = np.array(array, copy=True)
-    out.setflags(write=False)
-    return out
 
 
 def _format_pole(pole) -> str:
@@ -697,17 +692,17 @@ def assign_poles(plant: Plant, targets, *, method: str = "auto", complete_conjug
             "allows; the problem is badly conditioned, so check this gain carefully (or choose other targets)."
         )
     return PlacementResult(
-        gain=_read_only(gain),
-        requested=_read_only(requested),
-        achieved=_read_only(final.achieved),
-        errors=_read_only(final.errors),
+        gain=read_only(gain),
+        requested=read_only(requested),
+        achieved=read_only(final.achieved),
+        errors=read_only(final.errors),
         worst_error=worst_error,
         relative_error=float(relative_error),
         accurate=accurate,
-        error_tolerances=_read_only(tolerances),
+        error_tolerances=read_only(tolerances),
         method=method_name,
         note=" ".join(notes),
         eigenvector_condition=float(final.report.eigenvector_condition),
-        fixed_poles=_read_only(fixed),
+        fixed_poles=read_only(fixed),
         controllability_matrix_condition=float(controllability_condition),
     )

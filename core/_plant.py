@@ -12,6 +12,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 import scipy.linalg
 
+from ._arrays import read_only
 from ._errors import PlantError
 
 __all__ = [
@@ -22,11 +23,9 @@ __all__ = [
 ]
 
 
-def _frozen(array: np.ndarray) -> np.ndarray:
-    """Return a read-only float copy so a frozen dataclass is really frozen."""
-    out = np.array(array, dtype=float, copy=True)
-    out.setflags(write=False)
-    return out
+def _frozen(array) -> np.ndarray:
+    """A read-only float copy, so a frozen Plant is really frozen."""
+    return read_only(array, dtype=float)
 
 
 def _describe_shape(value) -> str:

@@ -23,12 +23,14 @@ functional-safety standards and licensed engineering practice.
 
 from __future__ import annotations
 
+from functools import partial
 import cmath
 import math
 from dataclasses import dataclass
 
 import numpy as np
 
+from ._arrays import read_only
 from ._errors import AnalysisError
 from ._metrics import (
     InputMetrics,
@@ -188,10 +190,7 @@ class ResponseSet:
 
 
 # -- small helpers -----------------------------------------------------------------------
-def _read_only(array) -> np.ndarray:
-    out = np.array(array, dtype=float)
-    out.setflags(write=False)
-    return out
+_read_only = partial(read_only, dtype=float)
 
 
 def _pole_text(pole: complex, sampled: bool) -> str:

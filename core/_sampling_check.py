@@ -26,6 +26,7 @@ import numpy as np
 import scipy.linalg
 import scipy.optimize
 
+from ._arrays import read_only
 from ._errors import AnalysisError
 from ._plant import Plant
 
@@ -86,12 +87,6 @@ class SamplingCheck:
     sampling_ratio: float
     largest_stable_sample_time: float | None
     note: str
-
-
-def _read_only(array) -> np.ndarray:
-    out = np.array(array, copy=True)
-    out.setflags(write=False)
-    return out
 
 
 def _sort_key(poles: np.ndarray) -> np.ndarray:
@@ -263,9 +258,9 @@ def check_sampled_implementation(plant: Plant, K, sample_time: float) -> Samplin
     )
     return SamplingCheck(
         sample_time=T,
-        continuous_poles=_read_only(continuous),
-        sampled_poles=_read_only(sampled),
-        equivalent_continuous_poles=_read_only(equivalent),
+        continuous_poles=read_only(continuous),
+        sampled_poles=read_only(sampled),
+        equivalent_continuous_poles=read_only(equivalent),
         survives=survives,
         worst_damping_change=worst,
         closed_loop_bandwidth=bandwidth,

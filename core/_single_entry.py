@@ -33,6 +33,7 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.linalg
 
+from ._arrays import read_only
 from ._errors import GainError
 from ._plant import Plant
 from ._single_entry_family import (
@@ -701,12 +702,6 @@ def _crossings_inside(analysis: StableIntervals, low: float, high: float) -> tup
     return tuple(c for c in analysis.crossings if low - slack <= c.gain <= high + slack)
 
 
-def _read_only(array) -> np.ndarray:
-    out = np.array(array, copy=True)
-    out.setflags(write=False)
-    return out
-
-
 def entry_locus(plant: Plant, K, row: int, col: int, low: float, high: float) -> EntryLocus:
     """Branch-tracked locus of the closed-loop poles as K[row, col] sweeps [low, high].
 
@@ -746,10 +741,10 @@ def _locus_of_family(plant: Plant, family: RankOneFamily, analysis: StableInterv
     sampled = adaptive_locus(family.poles, low, high, [family.current_value] + [c.gain for c in inside])
     return EntryLocus(
         entry=(row, col),
-        gains=_read_only(sampled.values),
-        poles=_read_only(sampled.poles),
-        start_poles=_read_only(sampled.poles[0]),
-        end_poles=_read_only(sampled.poles[-1]),
+        gains=read_only(sampled.values),
+        poles=read_only(sampled.poles),
+        start_poles=read_only(sampled.poles[0]),
+        end_poles=read_only(sampled.poles[-1]),
         crossings=inside,
         current_value=family.current_value,
         evaluation_count=sampled.evaluation_count,
@@ -856,10 +851,10 @@ def scaled_gain_locus(plant: Plant, K, low: float = 0.0, high: float = 2.0) -> S
         crossings, intervals, extra = _sampled_crossings(plant, feedback, sampled.values, sampled.poles)
         sampled = type(sampled)(sampled.values, sampled.poles, sampled.evaluation_count + extra, sampled.span)
     return ScaledGainLocus(
-        scales=_read_only(sampled.values),
-        poles=_read_only(sampled.poles),
-        start_poles=_read_only(sampled.poles[0]),
-        end_poles=_read_only(sampled.poles[-1]),
+        scales=read_only(sampled.values),
+        poles=read_only(sampled.poles),
+        start_poles=read_only(sampled.poles[0]),
+        end_poles=read_only(sampled.poles[-1]),
         crossings=crossings,
         stable_intervals=intervals,
         exact=bool(rank_one),
@@ -998,8 +993,8 @@ def pole_sensitivity(plant: Plant, K, row: int, col: int) -> PoleSensitivity:
             f"pole(s) {listing} are repeated or defective: they split as sqrt-like or unevenly when "
             f"{_entry_label(plant, row, col)} changes, so no single derivative exists (reported as NaN)"
         )
-    return PoleSensitivity((row, col), _read_only(eigenvalues), _read_only(derivatives), _read_only(defective),
-                           _read_only(conditions), note)
+    return PoleSensitivity((row, col), read_only(eigenvalues), read_only(derivatives), read_only(defective),
+                           read_only(conditions), note)
 
 
 # ---------------------------------------------------------------------------

@@ -22,6 +22,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ._arrays import read_only
 from ._closed_loop import _matching_indices, sort_poles
 from ._errors import PlantError
 from ._plant import as_real_matrix
@@ -49,12 +50,6 @@ WEAK_STRUCTURE_MARGIN = 1e-6
 # rounding-level coupling was kept: n²·eps·10^8 ≈ n²·2e-8, about √eps, the accuracy
 # to which a defective eigenvalue can be computed at all.
 _LARGEST_TOLERANCE_EXPONENT = 8
-
-
-def _read_only(array) -> np.ndarray:
-    out = np.array(array, copy=True)
-    out.setflags(write=False)
-    return out
 
 
 def rank_tolerance(matrix, steps: int = 1) -> float:
@@ -299,9 +294,9 @@ def _staircase(A, B, tolerance_B, tolerance_A, norm_A, norm_B, scale) -> Stairca
         rank = new_rank
     At[reached:, :reached] = 0.0
     return StaircaseForm(
-        transform=_read_only(Q),
-        A=_read_only(At),
-        B=_read_only(Bt),
+        transform=read_only(Q),
+        A=read_only(At),
+        B=read_only(Bt),
         controllable_dimension=int(reached),
         block_sizes=tuple(blocks),
         smallest_kept=smallest_kept,
@@ -472,13 +467,13 @@ def analyze_structure(plant) -> StructureReport:
         observable=bool(not np.any(hidden)),
         controllable_rank=reach.controllable_dimension,
         observable_rank=seen.controllable_dimension,
-        open_loop_poles=_read_only(poles),
+        open_loop_poles=read_only(poles),
         pole_movable=tuple(bool(not f) for f in fixed),
         pole_observable=tuple(bool(not h) for h in hidden),
-        uncontrollable_poles=_read_only(fixed_values),
-        unobservable_poles=_read_only(hidden_values),
-        pole_controllability_margins=_read_only(reach_margins),
-        pole_observability_margins=_read_only(seen_margins),
+        uncontrollable_poles=read_only(fixed_values),
+        unobservable_poles=read_only(hidden_values),
+        pole_controllability_margins=read_only(reach_margins),
+        pole_observability_margins=read_only(seen_margins),
         controllability_margin=smallest(reach_margins, fixed),
         observability_margin=smallest(seen_margins, hidden),
         nearly_uncontrollable=bool(np.any(reach_margins[~fixed] < WEAK_STRUCTURE_MARGIN)),

@@ -24,7 +24,7 @@ def test_double_integrator_with_identity_weights_matches_hand_derived_riccati_so
     np.testing.assert_allclose(result.riccati_solution, [[root3, 1.0], [1.0, root3]], rtol=1e-12)
     np.testing.assert_allclose(result.gain, [[1.0, root3]], rtol=1e-12)
     # Case 15: closed loop s² + √3 s + 1, poles −√3/2 ± j/2 (derived by hand), as an exact conjugate pair.
-    np.testing.assert_allclose(result.closed_loop_poles, [-root3 / 2 - 0.5j, -root3 / 2 + 0.5j], rtol=1e-12)
+    np.testing.assert_allclose(result.closed_loop_poles, [-root3 / 2 + 0.5j, -root3 / 2 - 0.5j], rtol=1e-12)
     assert result.closed_loop_poles[0] == np.conj(result.closed_loop_poles[1])  # common practice, no source
     assert result.weights_source == "given"
 
