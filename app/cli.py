@@ -220,11 +220,17 @@ def command_plants(args) -> int:
 
 
 def command_serve(args) -> int:
+    from .access import access_settings
     from .server import serve_workbench
 
+    # Refuse a server without a login on a non-loopback address, and a broken plant, before starting.
+    access_settings(args.address, password_file=args.password_file, token=args.token,
+                    cookie_secret_file=args.cookie_secret_file, require_login=args.require_login)
     if args.plant is not None:
-        resolve_plant(args.plant)  # refuse a broken plant before starting a server
-    serve_workbench(args.plant, address=args.address, port=args.port, show=not args.no_show)
+        resolve_plant(args.plant)
+    serve_workbench(args.plant, address=args.address, port=args.port, show=not args.no_show,
+                    password_file=args.password_file, token=args.token, cookie_secret_file=args.cookie_secret_file,
+                    require_login=args.require_login, allow_websocket_origin=args.allow_websocket_origin or ())
     return 0
 
 
@@ -287,6 +293,18 @@ def build_parser() -> argparse.ArgumentParser:
     serve.add_argument("--address", default="127.0.0.1", help="address to listen on (default: loopback only)")
     serve.add_argument("--port", type=int, default=0, help="port to listen on (default: a free port)")
     serve.add_argument("--no-show", action="store_true", help="do not open a browser tab")
+    serve.add_argument("--password-file", metavar="FILE",
+                       help="file whose first line is the team password (or set GAINBOARD_PASSWORD); "
+                            "a login is required on any address but loopback")
+    serve.add_argument("--token", action="store_true",
+                       help="generate an access token and print a sign-in link to share")
+    serve.add_argument("--require-login", action="store_true",
+                       help="ask for the password or token even on the loopback address")
+    serve.add_argument("--cookie-secret-file", metavar="FILE",
+                       help="file whose first line signs sign-in cookies (or set GAINBOARD_COOKIE_SECRET); "
+                            "give several servers the same one to share sign-ins (default: new at each start)")
+    serve.add_argument("--allow-websocket-origin", metavar="HOST[:PORT]", action="append",
+                       help="another host name under which pages are served (an alias or a proxy); repeatable")
     serve.set_defaults(handler=command_serve)
     return parser
 

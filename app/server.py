@@ -2,19 +2,39 @@
 
 The server listens on the loopback address unless told otherwise and serves
 every script, style sheet and font itself (Panel's server mode), so the page
-works in air-gapped labs. Each browser tab gets its own design state.
+works in air-gapped labs. Each browser tab gets its own design state, unless it
+joins a live room (``?room=NAME``, see :mod:`gainboard.app.rooms`).
+
+Who may connect (see :mod:`gainboard.app.access`): on the loopback address no
+login is asked for; any other address needs a password or a generated access
+token, or the server refuses to start. Live connections are accepted only from
+pages served under this server's own host names (the allowed websocket origins),
+plus any given with ``allow_websocket_origin``.
+
+Several server processes: each ``gainboard serve`` is independent. Give them the
+same cookie secret (``--cookie-secret-file`` or ``GAINBOARD_COOKIE_SECRET``) and a
+sign-in on one is accepted by the others reached under the same host name; snapshot
+links work on any of them; autosave files go to one data folder per user. Live rooms
+are held in the memory of one process: everyone in a room must open the same
+server (the same port), so run one process per team or project.
 """
 
 from __future__ import annotations
 
-import ipaddress
 import logging
 import socket
 import sys
 
-__all__ = ["serve_workbench", "pick_free_port", "workbench_url"]
+from .access import AccessSettings, WorkbenchLogin, access_settings, is_loopback, share_url
+
+__all__ = ["serve_workbench", "build_server", "pick_free_port", "workbench_url", "allowed_origins",
+           "MAX_MESSAGE_BYTES"]
 
 log = logging.getLogger(__name__)
+
+#: Largest message a page may send over its live connection (bounds uploads: a design file of
+#: 8 MB arrives base64-encoded, about 10.7 MB).
+MAX_MESSAGE_BYTES = 12_000_000
 
 
 def pick_free_port(address: str = "127.0.0.1") -> int:
@@ -31,28 +51,106 @@ def workbench_url(address: str, port: int) -> str:
     return f"http://{host}:{port}/"
 
 
-def _is_loopback(address: str) -> bool:
-    if address == "localhost":
-        return True
+def _host_with_port(host: str, port: int) -> str:
+    host = f"[{host}]" if ":" in host and not host.startswith("[") else host
+    return f"{host}:{port}"
+
+
+def _this_machine_addresses() -> set[str]:
+    """Host names and addresses other machines may use to reach this one."""
+    names = {socket.gethostname(), socket.getfqdn()}
     try:
-        return ipaddress.ip_address(address).is_loopback
-    except ValueError:
-        return False
+        for info in socket.getaddrinfo(socket.gethostname(), None):
+            names.add(info[4][0])
+    except OSError:
+        pass
+    return {name for name in names if name}
 
 
-def _allowed_origins(address: str, port: int) -> list[str]:
-    """Pages allowed to open the live connection: only this server's own addresses."""
-    if _is_loopback(address):
-        hosts = {"127.0.0.1", "localhost", address if ":" not in address else f"[{address}]"}
-    elif address in ("0.0.0.0", "::", ""):
-        # Listening everywhere: allow this machine's names; other hosts must be listed explicitly.
-        hosts = {"127.0.0.1", "localhost", socket.gethostname(), socket.getfqdn()}
-    else:
-        hosts = {address if ":" not in address else f"[{address}]", "127.0.0.1", "localhost"}
-    return sorted(f"{host}:{port}" for host in hosts)
+def allowed_origins(address: str, port: int, extra=()) -> list[str]:
+    """Host:port pairs whose pages may open the live connection: only this server's own addresses.
+
+    Parameters
+    ----------
+    address : str
+        The listening address.
+    port : int
+        The listening port.
+    extra : iterable of str
+        More ``HOST`` or ``HOST:PORT`` entries (e.g. a DNS alias or a reverse proxy); a
+        host without a port gets ``port``.
+
+    Examples
+    --------
+    >>> allowed_origins("127.0.0.1", 5006)
+    ['127.0.0.1:5006', 'localhost:5006']
+    """
+    hosts = {"127.0.0.1", "localhost"}
+    if address in ("0.0.0.0", "::", ""):
+        hosts |= _this_machine_addresses()  # listening everywhere: this machine's names and addresses
+    elif address not in hosts:
+        hosts.add(address)
+    origins = {_host_with_port(host, port) for host in hosts}
+    for entry in extra:
+        entry = entry.strip()
+        if not entry:
+            continue
+        has_port = entry.rsplit(":", 1)[-1].isdigit() and (not entry.count(":") > 1 or entry.startswith("["))
+        origins.add(entry if has_port else _host_with_port(entry, port))
+    return sorted(origins)
 
 
-def serve_workbench(plant_path: str | None, address: str = "127.0.0.1", port: int = 0, show: bool = True) -> None:
+def build_server(plant_path: str | None, *, address: str = "127.0.0.1", port: int = 0, show: bool = False,
+                 access: AccessSettings | None = None, extra_origins=()):
+    """Make (not start) the workbench server.
+
+    Returns
+    -------
+    (server, port)
+        The Bokeh server object (start it, then run its ``io_loop``) and the bound port.
+
+    Raises
+    ------
+    PlantError
+        If the plant cannot be loaded.
+    """
+    import panel as pn
+    from panel.io.server import get_server
+
+    from .state import plant_from_reference
+    from .workbench import configure_panel, open_session
+
+    plant, label, text = plant_from_reference(plant_path)  # refuse a broken plant before serving
+    configure_panel()
+    if port == 0:
+        port = pick_free_port(address)
+
+    def session():
+        user = pn.state.user if access is not None else None
+        return open_session(plant, plant_label=label, plant_text=text, arguments=dict(pn.state.session_args or {}),
+                            user=user)
+
+    options = {}
+    if access is not None:
+        options.update(auth_provider=WorkbenchLogin(access), cookie_secret=access.cookie_secret)
+    server = get_server(
+        {"/": session},
+        port=port,
+        address=address,
+        websocket_origin=allowed_origins(address, port, extra_origins),
+        show=show,
+        start=False,
+        verbose=False,
+        title="gainboard workbench",
+        websocket_max_message_size=MAX_MESSAGE_BYTES,
+        **options,
+    )
+    return server, server.port
+
+
+def serve_workbench(plant_path: str | None, address: str = "127.0.0.1", port: int = 0, show: bool = True, *,
+                    password_file=None, token: bool = False, cookie_secret_file=None, require_login: bool = False,
+                    allow_websocket_origin=()) -> None:
     """Serve the workbench until interrupted (blocking).
 
     Parameters
@@ -62,53 +160,52 @@ def serve_workbench(plant_path: str | None, address: str = "127.0.0.1", port: in
         bundled plant.
     address : str
         Address to listen on; loopback (127.0.0.1) by default so only this
-        machine can connect.
+        machine can connect. Any other address needs a password or a token.
     port : int
         TCP port; 0 picks a free one.
     show : bool
         Open a browser tab on start.
+    password_file : str or path, optional
+        File whose first line is the team password (else ``$GAINBOARD_PASSWORD``).
+    token : bool
+        Generate an access token and print a link that signs in with it.
+    cookie_secret_file : str or path, optional
+        File whose first line signs the sign-in cookies (else ``$GAINBOARD_COOKIE_SECRET``,
+        else a new secret per start).
+    require_login : bool
+        Ask for the password or token even on the loopback address.
+    allow_websocket_origin : sequence of str
+        Further ``HOST[:PORT]`` under which pages may be served (aliases, proxies).
 
     Notes
     -----
     Prints ``gainboard serving at http://ADDRESS:PORT/`` on standard output once
-    the port is bound (scripts and tests read it).
+    the port is bound (scripts and tests read it); with a token, also
+    ``gainboard sign-in link: http://HOST:PORT/login?token=...``.
 
     Raises
     ------
+    AccessError
+        Without a password or token on a non-loopback address (checked first).
     PlantError
         If the plant cannot be loaded (checked before the server starts).
     """
     import panel as pn
-    from panel.io.server import get_server
 
-    from .state import plant_from_reference
-    from .workbench import build_workbench, configure_panel
-
-    plant, label, text = plant_from_reference(plant_path)  # refuse a broken plant before serving
-    configure_panel()
-    if port == 0:
-        port = pick_free_port(address)
-    if not _is_loopback(address):
-        print(
-            f"gainboard: listening on {address}, reachable from other machines; the workbench has no login. "
-            "Use the default loopback address unless the network is trusted.",
-            file=sys.stderr,
-        )
-
-    def session():
-        return build_workbench(plant, plant_label=label, plant_text=text)
-
-    server = get_server(
-        {"/": session},
-        port=port,
-        address=address,
-        websocket_origin=_allowed_origins(address, port),
-        show=show,
-        start=False,
-        verbose=False,
-        title="gainboard workbench",
-    )
-    print(f"gainboard serving at {workbench_url(address, server.port)}", flush=True)
+    access = access_settings(address, password_file=password_file, token=token,
+                             cookie_secret_file=cookie_secret_file, require_login=require_login)
+    server, bound_port = build_server(plant_path, address=address, port=port, show=show, access=access,
+                                      extra_origins=allow_websocket_origin)
+    print(f"gainboard serving at {workbench_url(address, bound_port)}", flush=True)
+    if access is not None:
+        ways = " or ".join(way for way, given in (("the password", access.password), ("the access token", access.token))
+                           if given)
+        print(f"gainboard: sign-in required ({ways})", flush=True)
+        if access.token:
+            print(f"gainboard sign-in link: {share_url(address, bound_port, access.token)}", flush=True)
+    if not is_loopback(address):
+        print(f"gainboard: listening on {address}; other machines can reach this server. Share the sign-in "
+              "link only with your team.", file=sys.stderr, flush=True)
     server.start()
     try:
         server.io_loop.start()

@@ -10,12 +10,20 @@ one place, :meth:`DesignState._recompute`, by one call to
 The class knows nothing about Panel or Bokeh: the same object serves the
 browser views, the tests and a Python session. Every public method reports
 problems through :attr:`message` and leaves the design as it was; none raises.
+
+Every accepted change of the design itself (plant, K, specs, notes — not the live
+steps of a drag) counts up :attr:`DesignState.committed` and is recorded in the gain
+history; autosave and live rooms follow that counter. :meth:`DesignState.design`
+gives the whole design as a :class:`~gainboard.app.design_file.Design` for saving
+and export, and :meth:`DesignState.load_design` opens one.
 """
 
 from __future__ import annotations
 
 import contextlib
+import functools
 import logging
+from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
@@ -23,9 +31,21 @@ import param
 
 from gainboard import core
 
+from .design_file import (
+    MAX_DESIGN_FILE_BYTES,
+    MAX_GAIN_HISTORY,
+    Design,
+    DesignFileError,
+    design_from_json,
+    now_timestamp,
+)
 from .pole_drag import targets_after_drag
 
-__all__ = ["DesignState", "bundled_plants", "plant_from_reference"]
+__all__ = ["DesignState", "BundledPlant", "bundled_plants", "bundled_plant_catalogue", "plant_from_reference",
+           "MAX_NOTES_CHARACTERS"]
+
+#: Longest design notes accepted (a design file must stay far below its size limit).
+MAX_NOTES_CHARACTERS = 100_000
 
 log = logging.getLogger(__name__)
 
@@ -38,6 +58,56 @@ def bundled_plants() -> dict[str, Path]:
     from gainboard.sample_plants import bundled_plant_files
 
     return dict(sorted(bundled_plant_files().items()))
+
+
+@dataclass(frozen=True)
+class BundledPlant:
+    """A bundled sample plant as the plant chooser lists it.
+
+    Attributes
+    ----------
+    stem : str
+        Short name (the file name without ``.toml``), as ``gainboard serve`` accepts it.
+    name : str
+        The plant's name from its file.
+    summary : str
+        Its one-line summary.
+    path : pathlib.Path
+        The plant file.
+    """
+
+    stem: str
+    name: str
+    summary: str
+    path: Path
+
+
+@functools.lru_cache(maxsize=4)
+def _catalogue(signature: tuple) -> tuple[BundledPlant, ...]:
+    entries = []
+    for stem, path, _ in signature:
+        try:
+            plant = core.load_plant_file(path)
+        except core.GainboardError as error:  # a broken bundled file must not hide the others
+            log.warning("bundled plant %s cannot be read: %s", stem, error)
+            continue
+        entries.append(BundledPlant(stem=stem, name=plant.name, summary=plant.summary, path=Path(path)))
+    return tuple(entries)
+
+
+def bundled_plant_catalogue() -> tuple[BundledPlant, ...]:
+    """Every readable bundled plant with its name and one-line summary, sorted by stem.
+
+    The files are read once and again only when one of them changes.
+    """
+    signature = []
+    for stem, path in bundled_plants().items():
+        try:
+            stamp = path.stat().st_mtime_ns
+        except OSError:
+            continue
+        signature.append((stem, str(path), stamp))
+    return _catalogue(tuple(signature))
 
 
 def plant_from_reference(reference: str | None) -> tuple[core.Plant, str, str]:
@@ -112,6 +182,10 @@ class DesignState(param.Parameterized):
     lqr_poles = param.Parameter(default=None, constant=True,
                                 doc="Closed-loop poles of the LQR design (from the core), or None.")
     placement_summary = param.String(default="", doc="How the last pole assignment was computed, in words.")
+    notes = param.String(default="", doc="Free-text notes saved with the design (set through set_notes).")
+    committed = param.Integer(default=0, constant=True,
+                              doc="Counts accepted changes of the design (plant, K, specs, notes); live drag "
+                                  "steps are not counted. Autosave and live rooms follow it.")
     message = param.String(default="", doc="The last error or note for the user; empty when all is well.")
     message_kind = param.Selector(default="none", objects=["none", "note", "error"], doc="Kind of the message.")
     undo_depth = param.Integer(default=0, constant=True, doc="How many gain changes can be undone.")
@@ -126,6 +200,14 @@ class DesignState(param.Parameterized):
         self._drag = None
         self._failure: BaseException | None = None
         self._live = False
+        #: An object with get/put (see gainboard.app.rooms.SharedEvaluations) shared by the sessions
+        #: of a live room, so that a design shown in several sessions is evaluated once; None: no sharing.
+        self.evaluation_cache = None
+        self._created = now_timestamp()
+        self._modified = self._created
+        self._history: tuple = ()
+        self._history_plant = None
+        self._reference_gains = None  # (prefilter, integral gain, the K they belong to) from a design file
         starting_gain, note = (plant.check_gain(gain), "") if gain is not None else self._starting_gain(plant)
         super().__init__(
             plant=plant, plant_label=plant_label or plant.name, plant_text=plant_text,
@@ -135,19 +217,53 @@ class DesignState(param.Parameterized):
         with param.edit_constant(self):
             self.param.update(evaluation=evaluation, revision=1)
         self._reset_lqr_weights()
+        self._record_history()
         if note:
             self._say(note, "note")
         self.param.watch(self._recompute, list(_EVALUATION_INPUTS))
+
+    @classmethod
+    def from_design(cls, design: Design, label: str = "design file") -> "DesignState":
+        """A state showing ``design`` (plant, K, specs, notes and gain history) from the start.
+
+        Raises
+        ------
+        GainboardError
+            If the design cannot be shown (the caller decides how to report it).
+        """
+        from .plant_text import plant_to_toml
+
+        state = cls(design.plant, plant_label=label, plant_text=plant_to_toml(design.plant), gain=design.gain)
+        if design.effective_specs is not state.specs:
+            state._set_inputs(specs=design.effective_specs)
+        state.notes = design.notes
+        state._created, state._modified = design.created, design.modified
+        if design.gain_history:
+            state._history = tuple(design.gain_history)
+        state._record_history()
+        if design.prefilter is not None or design.integral_gain is not None:
+            state._reference_gains = (design.prefilter, design.integral_gain, np.array(design.gain, dtype=float))
+        return state
 
     # -- the one place where derived results are computed -----------------------------------
 
     def _evaluate(self):
         # While a slider or pole is being dragged the margins are left out (they are not
         # drawn live and are the slowest part); the release evaluates everything.
+        cache, key = self.evaluation_cache, None
+        if cache is not None:
+            key = (id(self.plant), id(self.specs), self.gain.shape, self.gain.tobytes(), self.selected_entry,
+                   not self._live)
+            found = cache.get(key, self.plant, self.specs)
+            if found is not None:
+                return found
         options = core.EvaluationOptions(
             selected_entry=self.selected_entry, specs=self.specs, include_margins=not self._live,
         )
-        return core.evaluate_design(self.plant, self.gain, options)
+        evaluation = core.evaluate_design(self.plant, self.gain, options)
+        if cache is not None:
+            cache.put(key, self.plant, self.specs, evaluation)
+        return evaluation
 
     def _recompute(self, *events):
         """Re-evaluate after any input changed; on failure restore the inputs and report."""
@@ -246,6 +362,8 @@ class DesignState(param.Parameterized):
                 self._say(note, "note")
             else:
                 self.clear_message()
+            if not live:
+                self._commit()
         return accepted
 
     def set_entry(self, row: int, col: int, value: float, *, live: bool = False) -> bool:
@@ -295,6 +413,7 @@ class DesignState(param.Parameterized):
             self._redo.append(current)
             self._gesture_start = None
             self._sync_history_depths()
+            self._commit()
             return True
         return False
 
@@ -313,6 +432,7 @@ class DesignState(param.Parameterized):
             self._undo.append(current)
             self._gesture_start = None
             self._sync_history_depths()
+            self._commit()
             return True
         return False
 
@@ -328,6 +448,7 @@ class DesignState(param.Parameterized):
         """Check the design against other specs (None: none)."""
         with self._reporting("use these specs"):
             self._set_inputs(specs=specs)
+            self._commit()
 
     # -- comparison --------------------------------------------------------------------------
 
@@ -516,17 +637,31 @@ class DesignState(param.Parameterized):
             return zeros, f"Starting from K = 0: no LQR starting design ({error})."
 
     def _replace_plant(self, plant: core.Plant, label: str, text: str, *,
-                       continuous_origin: core.Plant | None = None, note: str = "") -> None:
-        gain, start_note = self._starting_gain(plant)
+                       continuous_origin: core.Plant | None = None, note: str = "", gain=None,
+                       specs="plant", notes: str | None = None, history: tuple | None = None,
+                       created: str | None = None, reference_gains=None) -> None:
+        """Make ``plant`` current with ``gain`` (default: the starting gain) and ``specs`` (default: the plant's)."""
+        if gain is None:
+            gain, start_note = self._starting_gain(plant)
+        else:
+            gain, start_note = plant.check_gain(gain), ""
+        specs = plant.specs if isinstance(specs, str) else specs
         previous = {"plant_label": self.plant_label, "plant_text": self.plant_text,
                     "continuous_origin": self.continuous_origin}
         # The labels go first so that views refreshed by the new evaluation show them.
         self.param.update(plant_label=label, plant_text=text, continuous_origin=continuous_origin)
         try:
-            self._set_inputs(plant=plant, gain=gain, selected_entry=(0, 0), specs=plant.specs)
+            self._set_inputs(plant=plant, gain=gain, selected_entry=(0, 0), specs=specs)
         except BaseException:
             self.param.update(previous)
             raise
+        if notes is not None:
+            self.notes = notes
+        if created is not None:
+            self._created = created
+        self._history = tuple(history) if history else ()
+        self._history_plant = plant
+        self._reference_gains = reference_gains
         self._undo.clear()
         self._redo.clear()
         self._gesture_start = None
@@ -537,6 +672,7 @@ class DesignState(param.Parameterized):
         self._reset_lqr_weights()
         self.placement_summary = ""
         self._say(" ".join(n for n in (note, start_note) if n), "note")
+        self._commit()
 
     def load_plant_text(self, text: str, label: str = "edited plant") -> bool:
         """Replace the plant by one parsed from TOML text (the editor or an uploaded file)."""
@@ -588,5 +724,143 @@ class DesignState(param.Parameterized):
         with self._reporting("go back to the continuous plant"):
             label = self.plant_label.split(" (ZOH")[0]
             self._replace_plant(origin, label, self.plant_text, note="Back to the continuous plant.")
+            return True
+        return False
+
+    # -- the design as a whole: history, saving, loading ----------------------------------------
+
+    def _record_history(self) -> None:
+        """Add the current K to the gain history (if it differs from the last entry) and stamp the time."""
+        when = now_timestamp()
+        gain = np.array(self.gain, dtype=float, copy=True)
+        if self._history_plant is not self.plant:
+            self._history, self._history_plant = (), self.plant
+        last = self._history[-1][1] if self._history else None
+        if last is None or last.shape != gain.shape or last.tobytes() != gain.tobytes():
+            self._history = (self._history + ((when, gain),))[-MAX_GAIN_HISTORY:]
+        self._modified = when
+
+    def _commit(self) -> None:
+        """An accepted design change: record it and count it (autosave and rooms follow the count)."""
+        self._record_history()
+        references = self._reference_gains
+        if references is not None and references[2].tobytes() != np.asarray(self.gain, dtype=float).tobytes():
+            self._reference_gains = None
+            self._say("The design file's prefilter N and integral gain Ki were made for its K, so they were "
+                      "dropped when K changed; design them again for the new K.", "note")
+        with param.edit_constant(self):
+            self.committed += 1
+
+    def design(self) -> Design:
+        """The current design (plant, K, specs, notes, gain history) for saving, export and autosave.
+
+        Raises
+        ------
+        DesignFileError
+            If the state cannot be expressed as a design (not expected for a checked plant).
+        """
+        specs = self.specs
+        if specs is not None and not isinstance(specs, core.DesignSpecs):
+            raise DesignFileError(f"the specs must be DesignSpecs to be saved, got {type(specs).__name__}")
+        prefilter = integral = None
+        if self._reference_gains is not None:
+            prefilter, integral, _ = self._reference_gains
+        return Design(
+            plant=self.plant, gain=self.gain, prefilter=prefilter, integral_gain=integral,
+            specs=None if specs is self.plant.specs else specs, notes=self.notes,
+            gain_history=self._history, created=self._created, modified=self._modified,
+        )
+
+    def set_notes(self, text: str) -> bool:
+        """Replace the design notes (saved with the design and shared in a live room)."""
+        with self._reporting("keep the notes"):
+            text = str(text or "")
+            if len(text) > MAX_NOTES_CHARACTERS:
+                raise DesignFileError(f"the notes have {len(text)} characters; at most {MAX_NOTES_CHARACTERS} are kept")
+            if text == self.notes:
+                return True
+            self.notes = text
+            self._commit()
+            self._say("Notes saved with the design.", "note")
+            return True
+        return False
+
+    def load_design(self, design: Design, label: str = "design file") -> bool:
+        """Open a whole design: its plant, K, specs, notes and gain history (the undo history starts anew)."""
+        from .plant_text import plant_to_toml
+
+        with self._reporting(f"open {label}"):
+            if not isinstance(design, Design):
+                raise DesignFileError(f"{label}: not a design ({type(design).__name__})")
+            text = plant_to_toml(design.plant)
+            references = None
+            if design.prefilter is not None or design.integral_gain is not None:
+                references = (design.prefilter, design.integral_gain, np.array(design.gain, dtype=float))
+            self._replace_plant(
+                design.plant, label, text, gain=design.gain, specs=design.effective_specs, notes=design.notes,
+                history=design.gain_history, created=design.created, reference_gains=references,
+                note=f"Opened {label}.",
+            )
+            return True
+        return False
+
+    def load_design_bytes(self, data: bytes, filename: str) -> bool:
+        """Open an uploaded design file (JSON, at most MAX_DESIGN_FILE_BYTES); reading it never runs code."""
+        with self._reporting(f"open {filename}"):
+            if len(data) > MAX_DESIGN_FILE_BYTES:
+                raise DesignFileError(
+                    f"{filename}: {len(data)} bytes, larger than the {MAX_DESIGN_FILE_BYTES // 1_000_000} MB a "
+                    "design file may have"
+                )
+            try:
+                text = bytes(data).decode("utf-8")
+            except UnicodeDecodeError:
+                raise DesignFileError(f"{filename}: not UTF-8 text; a design file is JSON text") from None
+            design = design_from_json(text, filename)
+            return self.load_design(design, filename)
+        return False
+
+    # -- live rooms ---------------------------------------------------------------------------
+
+    def shared_design(self):
+        """The part of the design a live room shares (see :class:`gainboard.app.rooms.SharedDesign`)."""
+        from .rooms import SharedDesign
+
+        return SharedDesign(plant=self.plant, plant_label=self.plant_label, plant_text=self.plant_text,
+                            continuous_origin=self.continuous_origin, gain=self.gain, specs=self.specs,
+                            notes=self.notes)
+
+    def adopt_shared(self, shared, note: str = "") -> bool:
+        """Show a design another member of a live room published (one undo step when only K changed).
+
+        A different plant replaces the plant as opening one does (the undo history starts
+        anew); a different K, specs or notes are taken over in one evaluation.
+        """
+        with self._reporting("take over the room's design"):
+            if shared.plant is not self.plant:
+                self._replace_plant(
+                    shared.plant, shared.plant_label, shared.plant_text, continuous_origin=shared.continuous_origin,
+                    gain=shared.gain, specs=shared.specs, notes=shared.notes, note=note,
+                )
+                return True
+            changes = {}
+            before = self.gain.copy()
+            if before.shape != shared.gain.shape or before.tobytes() != shared.gain.tobytes():
+                changes["gain"] = np.array(shared.gain, dtype=float, copy=True)
+            if shared.specs is not self.specs:
+                changes["specs"] = shared.specs
+            if changes:
+                self._drag = None
+                self._gesture_start = None
+                self._set_inputs(**changes)
+                if "gain" in changes:
+                    self._undo.append(before)
+                    self._redo.clear()
+                    self._sync_history_depths()
+            notes_changed = shared.notes != self.notes
+            if notes_changed:
+                self.notes = shared.notes
+            if changes or notes_changed:
+                self._commit()
             return True
         return False

@@ -22,6 +22,7 @@ __all__ = [
     "format_complex",
     "format_gain_text",
     "trace_colour",
+    "entry_symbol",
 ]
 
 PALETTE = {
@@ -114,6 +115,22 @@ table.gb-table td.num {{ text-align: right; font-family: ui-monospace, monospace
 .gb-small {{ font-size: 12px; color: var(--gb-muted); }}
 .gb-readout {{ font-family: ui-monospace, monospace; font-size: 12.5px; }}
 """
+
+
+def entry_symbol(row: int, col: int) -> str:
+    """The name of gain entry (row, col) as written in the app, counted from 1: ``k₁₂``.
+
+    Examples
+    --------
+    >>> entry_symbol(0, 1)
+    'k₁₂'
+    >>> entry_symbol(9, 0)
+    'k[10,1]'
+    """
+    subscripts = str.maketrans("0123456789", "₀₁₂₃₄₅₆₇₈₉")
+    if row < 9 and col < 9:
+        return f"k{str(row + 1).translate(subscripts)}{str(col + 1).translate(subscripts)}"
+    return f"k[{row + 1},{col + 1}]"
 
 
 def trace_colour(index: int) -> str:

@@ -403,7 +403,9 @@ def test_dragging_on_the_map_without_a_browser_assigns_the_poles(reference_plant
 
 @pytest.mark.parametrize("module_name", [
     "gainboard.app.theme", "gainboard.app.pole_drag", "gainboard.app.views.gain_sliders",
-    "gainboard.app.views.lqr_panel", "gainboard.app.views.design_bar",
+    "gainboard.app.views.lqr_panel", "gainboard.app.views.design_bar", "gainboard.app.rooms",
+    "gainboard.app.snapshot", "gainboard.app.plant_text", "gainboard.app.access", "gainboard.app.server",
+    "gainboard.app.views.file_panel",
 ])
 def test_app_docstring_examples_run(module_name):
     import doctest
@@ -417,3 +419,167 @@ def test_importing_the_core_loads_no_user_interface_library():
     code = "import sys, gainboard.core; print(sorted(m for m in ('panel', 'bokeh', 'param') if m in sys.modules))"
     output = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout
     assert output.strip() == "[]"
+
+
+# -- the design as a whole: history, files, autosave, snapshots ---------------------------------
+# Reference case 3 (Franklin, Powell & Emami-Naeini, sec. 7.5, from memory): for case 1 with
+# C = [1, 0, 0] the reference prefilter is N = 200.
+
+
+def test_only_accepted_changes_are_counted_not_live_steps(state):
+    committed = state.committed
+    state.set_entry(0, 0, 250.0, live=True)
+    state.set_entry(0, 0, 260.0, live=True)
+    assert state.committed == committed
+    state.end_gesture()
+    assert state.committed == committed + 1
+    state.undo()
+    assert state.committed == committed + 2
+    assert not state.set_gain_text("[[1, 2]]")  # refused: nothing committed
+    assert state.committed == committed + 2
+
+
+def test_the_design_keeps_k_notes_and_the_gain_history_in_order(state, reference_plant):
+    from gainboard.app.design_file import design_from_json, design_to_json
+
+    state.set_entry(0, 0, 250.0)
+    state.set_notes("k11 raised for a faster response")
+    design = design_from_json(design_to_json(state.design()))
+    np.testing.assert_array_equal(design.gain, [[250.0, 55.0, 8.0]])
+    assert [entry[1].tolist() for entry in design.gain_history] == [REFERENCE_GAIN, [[250.0, 55.0, 8.0]]]
+    assert design.notes == "k11 raised for a faster response"
+    again = DesignState.from_design(design, "saved.json")
+    np.testing.assert_array_equal(again.gain, [[250.0, 55.0, 8.0]])
+    assert matched_distance(again.evaluation.closed_loop.poles,
+                            eig_closed_loop(reference_plant, [[250.0, 55.0, 8.0]])) < 1e-9  # numpy eig
+    assert core.parse_plant_text(again.plant_text).A.tolist() == reference_plant.A.tolist()
+
+
+def test_opening_a_design_file_brings_plant_gain_specs_and_notes(state):
+    from gainboard.app.design_file import Design, design_to_json
+    from gainboard.sample_plants import load_bundled_plant
+
+    plant = load_bundled_plant("maglev_ball")
+    gain = DesignState(plant).gain * 1.25
+    text = design_to_json(Design(plant=plant, gain=gain, notes="from the lab"))
+    assert state.load_design_bytes(text.encode(), "maglev.json")
+    assert state.plant.name == plant.name and state.notes == "from the lab"
+    np.testing.assert_array_equal(state.gain, gain)
+    assert state.specs == plant.specs and state.undo_depth == 0
+    assert "Opened maglev.json" in state.message
+    assert matched_distance(state.evaluation.closed_loop.poles, eig_closed_loop(plant, gain)) < 1e-8  # numpy
+
+
+@pytest.mark.parametrize("data, expected", [
+    (b"\xff\xfe not text", "not UTF-8 text"),
+    (b'{"format": "gainboard-design", "version": 99}', "version 99 is not known"),
+    (b'{"format": "gainboard-design", "version": 1, "plant": {}, "gain": {"K": [[1]]}, "run": "x"}',
+     "unknown key"),
+    (b" " * 8_000_001, "larger than the 8 MB"),
+])
+def test_a_bad_design_file_is_refused_and_the_design_kept(state, data, expected):
+    before = state.gain.copy()
+    assert not state.load_design_bytes(data, "bad.json")
+    assert state.message_kind == "error" and expected in state.message
+    np.testing.assert_array_equal(state.gain, before)
+
+
+def test_a_design_files_prefilter_is_kept_until_k_changes(reference_plant):
+    from gainboard.app.design_file import Design
+
+    # Reference case 3 (from memory): N = 200 belongs to K = [199, 55, 8] with C = [1, 0, 0].
+    design = Design(plant=reference_plant, gain=REFERENCE_GAIN, prefilter=[[200.0]])
+    state = DesignState(reference_plant)
+    assert state.load_design(design, "with-prefilter.json")
+    assert state.design().prefilter.tolist() == [[200.0]]
+    state.set_entry(0, 0, 300.0)
+    assert state.design().prefilter is None
+    assert "prefilter N and integral gain Ki were made for its K" in state.message
+
+
+def test_the_plant_chooser_lists_every_bundled_plant_with_its_name_and_summary():
+    import tomllib
+
+    from gainboard.app.state import bundled_plant_catalogue
+    from gainboard.sample_plants import bundled_plant_files
+
+    catalogue = bundled_plant_catalogue()
+    files = bundled_plant_files()
+    assert [entry.stem for entry in catalogue] == sorted(files)
+    for entry in catalogue:
+        raw = tomllib.loads(files[entry.stem].read_text(encoding="utf-8"))  # the standard library's TOML reader
+        assert (entry.name, entry.summary) == (raw["name"], raw["summary"])
+        assert entry.summary and "\n" not in entry.summary
+
+
+def test_autosave_keeps_each_accepted_edit_and_the_next_session_offers_it(reference_plant, tmp_path, monkeypatch):
+    from gainboard.app.design_file import load_design
+    from gainboard.app.workbench import open_session
+
+    monkeypatch.setenv("GAINBOARD_DATA_DIR", str(tmp_path))
+    first = open_session(reference_plant, plant_label="third_order_reference.toml").workbench
+    assert not first.offer_row.visible  # nothing saved before
+    first.state.set_gain(REFERENCE_GAIN)
+    first.state.set_entry(0, 0, 205.0, live=True)  # a live step is not written...
+    assert load_design(first.autosave.path).gain.tolist() == REFERENCE_GAIN
+    first.state.end_gesture()  # ...the release is
+    assert load_design(first.autosave.path).gain.tolist() == [[205.0, 55.0, 8.0]]
+    assert oct(first.autosave.folder.stat().st_mode & 0o777) == "0o700"  # designs may be confidential
+    # While the first page is open, another page is not offered its work.
+    assert not open_session(reference_plant).workbench.offer_row.visible
+    first.close()  # the tab is closed (or the server stopped): the next start offers the design
+    second = open_session(reference_plant, plant_label="third_order_reference.toml").workbench
+    assert second.offer_row.visible and "[[205, 55, 8]]" in second.offer.object
+    assert not np.array_equal(second.state.gain, [[205.0, 55.0, 8.0]])  # offered, not applied silently
+    assert second.restore_offered()
+    np.testing.assert_array_equal(second.state.gain, [[205.0, 55.0, 8.0]])
+    assert matched_distance(second.state.evaluation.closed_loop.poles,
+                            eig_closed_loop(reference_plant, [[205.0, 55.0, 8.0]])) < 1e-9  # numpy eig
+    assert not first.autosave.path.exists()  # the restored file is now this session's own autosave
+    assert second.autosave.path.exists()
+
+
+def test_discarding_the_offer_removes_the_autosave(reference_plant, tmp_path, monkeypatch):
+    from gainboard.app.workbench import open_session
+
+    monkeypatch.setenv("GAINBOARD_DATA_DIR", str(tmp_path))
+    first = open_session(reference_plant).workbench
+    first.state.set_gain(REFERENCE_GAIN)
+    first.close()
+    second = open_session(reference_plant).workbench
+    assert second.offer_row.visible
+    second.discard_offered()
+    assert not second.offer_row.visible and not first.autosave.path.exists()
+
+
+def test_a_snapshot_link_opens_the_same_design_in_a_fresh_session(reference_plant, tmp_path, monkeypatch):
+    from gainboard.app.workbench import open_session
+
+    monkeypatch.setenv("GAINBOARD_DATA_DIR", str(tmp_path))
+    source = open_session(reference_plant).workbench
+    source.state.set_gain([[199.123456789012, 55.0, 8.0]])
+    link = source.make_snapshot_link()
+    code = link.split("design=", 1)[1]
+    fresh = open_session(core.Plant(A=[[-1.0]], B=[[1.0]]), arguments={"design": [code.encode()]}).workbench
+    assert fresh.state.gain.tobytes() == source.state.gain.tobytes()  # every bit
+    assert fresh.state.plant.A.tolist() == reference_plant.A.tolist()
+    assert "snapshot link" in fresh.state.message
+    broken = open_session(reference_plant, arguments={"design": [code[:40].encode()]}).workbench
+    assert broken.state.message_kind == "error" and "Could not open the snapshot link" in broken.state.message
+    assert broken.state.plant is reference_plant  # the server's plant instead
+
+
+def test_the_file_tab_downloads_are_the_library_exports(reference_plant):
+    from gainboard.app.export import export_design
+    from gainboard.app.workbench import build_workbench
+
+    workbench = build_workbench(reference_plant, plant_label="third_order_reference.toml").workbench
+    workbench.state.set_gain(REFERENCE_GAIN)
+    panel = workbench.file_panel
+    panel.export_format.value = "c"
+    assert panel.download_export.filename == "third_order_reference-gains.h"
+    assert panel._export().read() == export_design(workbench.state.design(), "c")
+    design_text = panel._design_file().read()
+    assert '"K": [\n      [199.0, 55.0, 8.0]' in design_text
+    panel.export_format.value = "csv"
+    assert panel.download_export.filename.endswith(".csv")

@@ -6,7 +6,7 @@ from html import escape
 
 import panel as pn
 
-from ..state import bundled_plants
+from ..state import bundled_plant_catalogue
 from .html_box import HtmlBox
 from .tables import TABLE_CSS, structure_summary_html
 
@@ -21,12 +21,17 @@ class PlantPanel:
     def __init__(self, state):
         self.state = state
         try:
-            names = list(bundled_plants())
+            catalogue = bundled_plant_catalogue()
         except Exception:  # no bundled plants installed: the other ways to load still work
-            names = []
-        self.bundled = pn.widgets.Select(label="Bundled plant", options=names, width=230, margin=(2, 5),
+            catalogue = ()
+        self._summaries = {entry.stem: entry.summary for entry in catalogue}
+        # Each choice reads "name — one-line summary"; the value is the short name `gainboard serve` takes.
+        options = {f"{entry.name} — {entry.summary}" if entry.summary else entry.name: entry.stem
+                   for entry in catalogue}
+        self.bundled = pn.widgets.Select(label="Sample plant", options=options, width=WIDTH - 10, margin=(2, 5),
                                          css_classes=["gb-bundled"])
-        self.open_button = pn.widgets.Button(label="Open", color="primary", width=80, margin=(20, 5, 2, 5))
+        self.bundled_summary = HtmlBox(css=TABLE_CSS, width=WIDTH - 100, margin=(2, 5), name="bundled_summary")
+        self.open_button = pn.widgets.Button(label="Open", color="primary", width=80, margin=(2, 5))
         self.file_input = pn.widgets.FileInput(accept=".toml", width=WIDTH - 10, margin=(2, 5), label="plant file",
                                                css_classes=["gb-plant-file"])
         self.editor = pn.widgets.TextAreaInput(
@@ -42,6 +47,7 @@ class PlantPanel:
         self.description = HtmlBox(css=TABLE_CSS, width=WIDTH - 10, margin=(2, 5))
 
         self.open_button.on_click(lambda event: self._open_bundled())
+        self.bundled.param.watch(lambda event: self._show_bundled_summary(), "value")
         self.file_input.param.watch(self._file_chosen, "value")
         self.apply_button.on_click(lambda event: self.state.load_plant_text(self.editor.value, "edited plant"))
         self.sample_button.on_click(lambda event: self.state.sample_plant(float(self.sample_time.value or 0.0)))
@@ -51,7 +57,8 @@ class PlantPanel:
                                             stylesheets=[TABLE_CSS], margin=(4, 5, 0, 5))
         self.panel = pn.Column(
             heading("open"),
-            pn.Row(self.bundled, self.open_button, margin=0),
+            self.bundled,
+            pn.Row(self.bundled_summary.panel, self.open_button, margin=0),
             pn.pane.HTML('<div class="gb-small">or load a plant file (TOML) from disk:</div>',
                          stylesheets=[TABLE_CSS], margin=(2, 5)),
             self.file_input,
@@ -68,6 +75,12 @@ class PlantPanel:
             margin=0,
         )
 
+    def _show_bundled_summary(self) -> None:
+        stem = self.bundled.value
+        summary = self._summaries.get(stem, "")
+        self.bundled_summary.object = (f'<div class="gb-small"><code>{escape(stem or "")}</code>: {escape(summary)}</div>'
+                                       if stem else "")
+
     def _open_bundled(self) -> None:
         if self.bundled.value:
             self.state.load_plant_reference(self.bundled.value)
@@ -78,8 +91,10 @@ class PlantPanel:
 
     def refresh(self, evaluation) -> None:
         """Show the current plant's text, structure and description."""
-        if self.state.plant_label in self.bundled.options and self.bundled.value != self.state.plant_label:
+        stems = set(self.bundled.options.values()) if isinstance(self.bundled.options, dict) else set()
+        if self.state.plant_label in stems and self.bundled.value != self.state.plant_label:
             self.bundled.value = self.state.plant_label
+        self._show_bundled_summary()
         if self.editor.value != self.state.plant_text:
             self.editor.value = self.state.plant_text
         self.structure.object = structure_summary_html(evaluation)

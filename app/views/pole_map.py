@@ -39,7 +39,7 @@ from bokeh.plotting import figure
 from gainboard import core
 
 from ..scheduling import guarded
-from ..theme import LOCUS_RAMP, MARKERS, PALETTE, format_complex, format_number
+from ..theme import LOCUS_RAMP, MARKERS, PALETTE, entry_symbol, format_complex, format_number
 from .html_box import HtmlBox
 
 __all__ = ["PoleMap", "entry_symbol"]
@@ -54,14 +54,6 @@ SNAP_PX = 5
 EDGE_FRACTION = 0.05
 #: Length of a sensitivity arrow as a fraction of the view height.
 ARROW_FRACTION = 0.09
-
-
-def entry_symbol(row: int, col: int) -> str:
-    """The name of gain entry (row, col) as written in the app, counted from 1: ``k₁₂``."""
-    subscripts = str.maketrans("0123456789", "₀₁₂₃₄₅₆₇₈₉")
-    if row < 9 and col < 9:
-        return f"k{str(row + 1).translate(subscripts)}{str(col + 1).translate(subscripts)}"
-    return f"k[{row + 1},{col + 1}]"
 
 
 def _xy(poles) -> tuple[list[float], list[float]]:

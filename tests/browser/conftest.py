@@ -98,8 +98,12 @@ class WorkbenchPage:
 
     # -- loading and waiting ----------------------------------------------------------------
 
-    def open(self) -> "WorkbenchPage":
-        self.page.goto(self.server.url)
+    def open(self, query: str = "") -> "WorkbenchPage":
+        """Load the workbench (``query`` such as ``"?room=lab&name=Ana"``) and wait until it shows a design."""
+        self.page.goto(self.server.url + query)
+        return self.wait_until_loaded()
+
+    def wait_until_loaded(self) -> "WorkbenchPage":
         self.page.locator(".gb-status").wait_for(state="visible")
         self.page.locator(".gb-pole-row").first.wait_for(state="attached")
         return self
@@ -225,6 +229,34 @@ class WorkbenchPage:
         served = urlsplit(self.server.url).netloc
         return [url for url in self.requests
                 if urlsplit(url).scheme in ("http", "https", "ws", "wss") and urlsplit(url).netloc != served]
+
+
+@pytest.fixture
+def open_page(browser, server):
+    """Open more tabs, each in its own browser context (a separate person): ``open_page("?room=lab")``.
+
+    Fails the test if any of them reported problems or the server logged an exception.
+    """
+    log_start = len(server.log())
+    opened: list[tuple] = []
+
+    def open_one(query: str = "", target=None, load: bool = True) -> WorkbenchPage:
+        """``target``: another RunningServer; ``load=False``: only go to the address (e.g. a sign-in page)."""
+        context = browser.new_context(viewport=VIEWPORT, accept_downloads=True)
+        tab = WorkbenchPage(context.new_page(), target or server)
+        opened.append((context, tab))
+        if not load:
+            tab.page.goto(tab.server.url + query)
+            return tab
+        return tab.open(query)
+
+    yield open_one
+    for context, _ in opened:
+        context.close()
+    for _, tab in opened:
+        assert not tab.problems, "a page reported problems:\n" + "\n".join(tab.problems)
+    server_log = server.log()[log_start:]
+    assert "Traceback" not in server_log, "the server logged an exception:\n" + server_log[-4000:]
 
 
 @pytest.fixture

@@ -154,9 +154,24 @@ def test_undo_and_redo_walk_the_gain_history(workbench):
 
 @pytest.mark.parametrize("plant_name", ["tilt_rig_sampled"])
 def test_bundled_sampled_plant_opens_on_the_z_plane(workbench, plant_name):
+    import tomllib
+
     workbench.open_tab("Plant")
     page = workbench.page
-    page.locator(".gb-bundled select").select_option(plant_name)
+    # The chooser lists every bundled plant by its name and one-line summary, as its file gives them
+    # (read here with the standard library's TOML reader).
+    listed = page.locator(".gb-bundled select option").all_inner_texts()
+    from gainboard.sample_plants import bundled_plant_files
+
+    expected = []
+    for path in bundled_plant_files().values():
+        raw = tomllib.loads(path.read_text(encoding="utf-8"))
+        expected.append(f"{raw['name']} — {raw['summary']}")
+    assert sorted(listed) == sorted(expected)
+    raw = tomllib.loads(core_bundled(plant_name).read_text(encoding="utf-8"))
+    page.locator(".gb-bundled select").select_option(label=f"{raw['name']} — {raw['summary']}")
+    workbench.wait_for(lambda: plant_name in page.locator(".gb-plant-panel-summary, .gb-small code").all_inner_texts(),
+                       "the chosen plant's short name under the chooser")
     before = workbench.revision()
     page.get_by_role("button", name="Open", exact=True).click()
     workbench.wait_for_revision_above(before)

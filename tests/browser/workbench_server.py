@@ -1,7 +1,7 @@
-"""Starting `gainboard serve` for browser tests and the latency benchmark.
+"""Starting `gainboard serve` for browser tests, the access tests and the load test.
 
-Kept apart from conftest.py so that tests/benchmarks/browser_latency.py can use it
-as a plain module.
+Kept apart from conftest.py so that tests/benchmarks/*.py and tests/test_*.py can use
+it as a plain module. Servers only ever listen on the loopback address 127.0.0.1.
 """
 
 from __future__ import annotations
@@ -9,6 +9,7 @@ from __future__ import annotations
 import os
 import queue
 import re
+import shutil
 import subprocess
 import sys
 import tempfile
@@ -32,19 +33,41 @@ SERVER_START_TIMEOUT = 90.0
 REPOSITORY = Path(__file__).resolve().parents[2]
 
 _URL_LINE = re.compile(r"gainboard serving at (http://127\.0\.0\.1:\d+/)")
+_SIGN_IN_LINE = re.compile(r"gainboard sign-in link: (http://\S+)")
 
 
 class RunningServer:
-    """A `gainboard serve` subprocess and the URL it printed."""
+    """A `gainboard serve` subprocess on a free loopback port and the URL it printed.
 
-    def __init__(self, plant: str):
+    Parameters
+    ----------
+    plant : str
+        Plant file or bundled plant name.
+    options : sequence of str
+        More `gainboard serve` options (e.g. ``["--require-login", "--token"]``).
+    environment : mapping, optional
+        More environment variables. ``GAINBOARD_DATA_DIR`` is a fresh temporary folder
+        (removed by :meth:`stop`) unless given, so autosaves never touch the real home folder.
+    launcher : sequence of str, optional
+        The command to run instead of ``python -m gainboard.app.cli`` (a test harness
+        that accepts the same arguments).
+    """
+
+    def __init__(self, plant: str, options=(), environment=None, launcher=None):
         self.log_file = tempfile.NamedTemporaryFile("w+", prefix="gainboard-serve-", suffix=".log", delete=False)
-        environment = dict(os.environ, PYTHONUNBUFFERED="1")
+        given = dict(environment or {})
+        environment = dict(os.environ, PYTHONUNBUFFERED="1", **given)
+        self._own_data_folder = None
+        if "GAINBOARD_DATA_DIR" not in given:
+            self._own_data_folder = tempfile.mkdtemp(prefix="gainboard-data-")
+            environment["GAINBOARD_DATA_DIR"] = self._own_data_folder
+        self.data_folder = Path(environment["GAINBOARD_DATA_DIR"])
         # Small matrices: one BLAS thread each, so the test server does not crowd the shared cores.
         environment.setdefault("OPENBLAS_NUM_THREADS", "1")
         environment.setdefault("OMP_NUM_THREADS", "1")
+        command = list(launcher) if launcher else [sys.executable, "-m", "gainboard.app.cli"]
         self.process = subprocess.Popen(
-            [sys.executable, "-m", "gainboard.app.cli", "serve", plant, "--no-show", "--port", "0"],
+            [*command, "serve", plant, "--no-show", "--address", "127.0.0.1", "--port", "0", *options],
             stdout=subprocess.PIPE, stderr=self.log_file, text=True, env=environment, cwd=REPOSITORY,
         )
         lines: queue.Queue[str | None] = queue.Queue()
@@ -57,7 +80,9 @@ class RunningServer:
         threading.Thread(target=read_stdout, daemon=True).start()
         deadline = time.monotonic() + SERVER_START_TIMEOUT
         self.url = None
-        printed = []
+        self.sign_in_url = None
+        self.printed: list[str] = []
+        wants_sign_in_link = "--token" in options
         while time.monotonic() < deadline:
             try:
                 line = lines.get(timeout=0.5)
@@ -65,16 +90,18 @@ class RunningServer:
                 continue
             if line is None:
                 break
-            printed.append(line)
-            match = _URL_LINE.search(line)
-            if match:
+            self.printed.append(line)
+            if match := _URL_LINE.search(line):
                 self.url = match.group(1)
+            if match := _SIGN_IN_LINE.search(line):
+                self.sign_in_url = match.group(1)
+            if self.url and (self.sign_in_url or not wants_sign_in_link):
                 break
         if self.url is None:
             error_output = self.log()
             self.stop()
             raise RuntimeError(
-                "`gainboard serve` did not print its URL; stdout:\n" + "".join(printed) + "\nstderr:\n" + error_output
+                "`gainboard serve` did not print its URL; stdout:\n" + "".join(self.printed) + "\nstderr:\n" + error_output
             )
 
     def log(self) -> str:
@@ -82,7 +109,7 @@ class RunningServer:
         return Path(self.log_file.name).read_text(errors="replace")
 
     def stop(self) -> None:
-        """End the server (this process started it) and remove its log file."""
+        """End the server (this process started it) and remove its log file and data folder."""
         if self.process.poll() is None:
             self.process.terminate()
             try:
@@ -92,3 +119,5 @@ class RunningServer:
                 self.process.wait()
         self.log_file.close()
         Path(self.log_file.name).unlink(missing_ok=True)
+        if self._own_data_folder is not None:
+            shutil.rmtree(self._own_data_folder, ignore_errors=True)
