@@ -21,31 +21,16 @@ import numpy as np
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
-from scipy.optimize import linear_sum_assignment
 
 from gainboard import core
 from gainboard.app.pole_drag import conjugate_partner, targets_after_drag
 from gainboard.app.scheduling import LatestOnly, guarded
 from gainboard.app.state import DesignState, plant_from_reference
 from gainboard.app.theme import format_complex, format_gain_text, format_number
+from pole_references import REFERENCE_GAIN, REFERENCE_POLES, matched_distance
+from pole_references import numpy_closed_loop_poles as eig_closed_loop
 
 DATA = Path(__file__).resolve().parent / "data"
-REFERENCE_GAIN = [[199.0, 55.0, 8.0]]
-REFERENCE_POLES = [-2 + 4j, -2 - 4j, -10]  # Ogata Example 10-1 (from memory), reference case 1
-
-
-def matched_distance(found, expected) -> float:
-    """Largest distance after pairing the two pole lists one to one (optimal assignment, scipy)."""
-    found, expected = np.asarray(found, complex), np.asarray(expected, complex)
-    assert found.shape == expected.shape
-    cost = np.abs(found[:, None] - expected[None, :])
-    rows, cols = linear_sum_assignment(cost)
-    return float(cost[rows, cols].max())
-
-
-def eig_closed_loop(plant, gain) -> np.ndarray:
-    """Outside reference: numpy's eigenvalues of A − BK."""
-    return np.linalg.eigvals(np.asarray(plant.A) - np.asarray(plant.B) @ np.asarray(gain, dtype=float))
 
 
 @pytest.fixture(scope="module")

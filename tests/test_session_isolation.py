@@ -16,11 +16,11 @@ from __future__ import annotations
 import sys
 from pathlib import Path
 
-import numpy as np
 import pytest
-from scipy.optimize import linear_sum_assignment
 
 from gainboard import core
+from pole_references import REFERENCE_POLES, matched_distance
+from pole_references import numpy_closed_loop_poles as numpy_poles
 
 BROWSER = Path(__file__).resolve().parent / "browser"
 sys.path.insert(0, str(BROWSER))
@@ -28,21 +28,6 @@ from session_client import SessionClient  # noqa: E402
 from workbench_server import RunningServer  # noqa: E402
 
 PLANT = Path(__file__).resolve().parent / "data" / "third_order_reference.toml"
-REFERENCE_POLES = [-2 + 4j, -2 - 4j, -10]  # Ogata Example 10-1 (from memory), reference case 1
-
-
-def matched_distance(found, expected) -> float:
-    """Largest distance after pairing two pole lists one to one (optimal assignment, scipy)."""
-    found, expected = np.asarray(found, complex), np.asarray(expected, complex)
-    assert found.shape == expected.shape, f"{found} vs {expected}"
-    cost = np.abs(found[:, None] - expected[None, :])
-    rows, cols = linear_sum_assignment(cost)
-    return float(cost[rows, cols].max())
-
-
-def numpy_poles(plant, gain) -> np.ndarray:
-    """Outside reference: numpy's eigenvalues of A − BK."""
-    return np.linalg.eigvals(np.asarray(plant.A) - np.asarray(plant.B) @ np.asarray(gain, dtype=float))
 
 
 @pytest.fixture(scope="module")

@@ -13,33 +13,16 @@ import shutil
 import tempfile
 from pathlib import Path
 
-import numpy as np
 import pytest
-from scipy.optimize import linear_sum_assignment
 from workbench_server import RunningServer
 
 from gainboard import core
+from pole_references import REFERENCE_POLES, matched_distance, numpy_closed_loop_poles
 
 DATA = Path(__file__).resolve().parents[1] / "data"
 PLANT_FILE = DATA / "third_order_reference.toml"
 REFERENCE_GAIN = "[[199, 55, 8]]"
-# Ogata, Modern Control Engineering, 5th ed., Example 10-1 (from memory); reference case 1.
-REFERENCE_POLES = np.array([-2 + 4j, -2 - 4j, -10 + 0j])
 PASSWORD = "correct horse battery"
-
-
-def matched_distance(found, expected) -> float:
-    """Largest distance after pairing two pole lists one to one (optimal assignment, scipy)."""
-    found, expected = np.asarray(found, complex), np.asarray(expected, complex)
-    assert found.shape == expected.shape, f"{found} vs {expected}"
-    cost = np.abs(found[:, None] - expected[None, :])
-    rows, cols = linear_sum_assignment(cost)
-    return float(cost[rows, cols].max())
-
-
-def numpy_closed_loop_poles(plant, gain) -> np.ndarray:
-    """Outside reference: numpy's eigenvalues of A − BK."""
-    return np.linalg.eigvals(np.asarray(plant.A) - np.asarray(plant.B) @ np.asarray(gain, dtype=float))
 
 
 def test_two_pages_in_one_room_see_each_others_changes(open_page):
