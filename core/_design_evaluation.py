@@ -17,7 +17,7 @@ from ._errors import GainboardError, GainError
 from ._margins import loop_margins
 from ._plant import Plant
 from ._responses import ResponseSet, simulate_responses
-from ._single_entry import _entry_views, all_entry_stable_intervals, pole_sensitivity
+from ._single_entry import _all_entry_intervals, _entry_views, pole_sensitivity
 from ._spec_checks import check_specs, pole_region
 from ._specs import DesignSpecs
 from ._structure import StructureReport, analyze_structure
@@ -35,7 +35,11 @@ class EvaluationOptions:
         Zero-based (row = input, column = state) of the gain entry whose locus and
         pole sensitivities are wanted; ``None`` skips them.
     entry_range : (float, float) or None
-        Sweep range of the selected entry's locus; automatic around the current value when ``None``.
+        Sweep range of the selected entry's locus. When ``None`` it is automatic and
+        coarse: ±W around a multiple of W/2 near the current value, where W is
+        max(3·|value|, the entry's natural scale) rounded up to a power of two, widened
+        to the ends of the stable interval nearby and padded by 10 %. It stays the same while the
+        value moves inside its middle half, so a slider drag reuses the locus.
     initial_state : array_like, shape (n,), optional
         Start of the regulation response; the plant's own initial state when ``None``.
     horizon : float, optional
@@ -75,6 +79,10 @@ class DesignEvaluation:
         The entry whose locus and sensitivities follow.
     selected_intervals, selected_locus, sensitivity
         Exact stable intervals, the branch-tracked locus and dλ/dk of the selected entry.
+        The intervals and locus are analysed from A − B·K with the selected entry set to
+        zero and kept while only that entry changes (a slider drag); they can differ
+        from :func:`entry_stable_intervals` by rounding errors only, and
+        ``entry_intervals[selected_entry]`` is this same object.
     responses : ResponseSet
         Initial-condition, reference-step and disturbance responses with effort and metrics.
     margins : LoopMargins or None
@@ -169,14 +177,15 @@ def evaluate_design(plant: Plant, gain, options: EvaluationOptions | None = None
     structure, open_loop = _plant_analysis(plant)
     closed_loop = analyze_closed_loop(plant, K)
 
-    intervals = all_entry_stable_intervals(plant, K) if options.include_all_entry_intervals else {}
     selected = None if options.selected_entry is None else _check_entry(plant, options.selected_entry)
     selected_intervals = selected_locus = sensitivity = None
     if selected is not None:
         row, col = selected
-        selected_intervals, selected_locus = _entry_views(plant, K, row, col, options.entry_range,
-                                                         intervals.get(selected))
+        selected_intervals, selected_locus = _entry_views(plant, K, row, col, options.entry_range)
         sensitivity = pole_sensitivity(plant, K, row, col)
+    # the selected entry's intervals are shared, so the sliders and the locus never disagree
+    known = {} if selected is None else {selected: selected_intervals}
+    intervals = _all_entry_intervals(plant, K, known) if options.include_all_entry_intervals else {}
 
     band = specs.settling_band if specs is not None else 0.02
     responses = simulate_responses(

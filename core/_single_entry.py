@@ -28,7 +28,10 @@ from __future__ import annotations
 
 import math
 import numbers
-from dataclasses import dataclass
+import threading
+import weakref
+from collections import OrderedDict
+from dataclasses import dataclass, replace
 
 import numpy as np
 import scipy.linalg
@@ -49,7 +52,7 @@ from ._single_entry_family import (
     reduce_input,
     unstable_count,
 )
-from ._single_entry_sampler import adaptive_locus
+from ._single_entry_sampler import adaptive_locus, match_to, plot_span
 
 __all__ = [
     "EntryPolynomials",
@@ -645,12 +648,21 @@ def all_entry_stable_intervals(plant: Plant, K) -> dict[tuple[int, int], StableI
     """
     if not isinstance(plant, Plant):
         raise GainError(f"the plant must be a gainboard Plant, but {type(plant).__name__} was given")
-    gain = plant.check_gain(K)
+    return _all_entry_intervals(plant, plant.check_gain(K), {})
+
+
+def _all_entry_intervals(plant: Plant, gain: np.ndarray, known: dict) -> dict[tuple[int, int], StableIntervals]:
+    """:func:`all_entry_stable_intervals` taking the entries in ``known`` as given (checked gain)."""
     closed_loop = plant.A - plant.B @ gain
     results = {}
     for row in range(plant.input_count):
-        reduction = reduce_input(closed_loop, plant.B[:, row])
+        reduction = None
         for col in range(plant.state_count):
+            if (row, col) in known:
+                results[(row, col)] = known[(row, col)]
+                continue
+            if reduction is None:
+                reduction = reduce_input(closed_loop, plant.B[:, row])
             family = _entry_family(plant, gain, row, col, reduction)
             results[(row, col)] = _analyze_family(plant, family, row, col)
     return results
@@ -1051,22 +1063,165 @@ def _range_of_family(family: RankOneFamily, analysis: StableIntervals) -> tuple[
 
 
 # ---------------------------------------------------------------------------
-# Everything about one entry at once (for evaluate_design)
+# Everything about one entry at once (for evaluate_design), reused while the slider moves
 # ---------------------------------------------------------------------------
-def _entry_views(plant: Plant, K, row: int, col: int, entry_range=None,
-                intervals: StableIntervals | None = None) -> tuple[StableIntervals, EntryLocus]:
-    """Stable intervals and locus of one entry from a single analysis of its family.
+# While the engineer drags the slider of the selected entry k_ij, A_z = A − B·K with
+# k_ij set to zero stays the same, and so does the whole family of that entry: its
+# minimal system, crossings, stable intervals and the locus over a given range. The
+# selected entry is therefore analysed from A_z (reference value 0), never from the
+# current closed loop, so the analysis is a function of (plant, entry, A_z) alone and
+# can be kept; only the current value, its stability verdict and its sample on the
+# locus are worked out per call. A cached result is the very object an uncached call
+# computes for the same (plant, K with k_ij zeroed, entry, range): bit-for-bit equal.
+_FAMILIES_PER_PLANT = 4  # a few gain matrices per plant (the selected entry and one or two others)
+_RANGES_PER_FAMILY = 4  # a few locus ranges per family (the automatic range moves in coarse steps)
 
-    Same results as :func:`entry_stable_intervals` and :func:`entry_locus` over
-    ``entry_range`` (or :func:`default_entry_range` when ``None``), but the family
-    is reduced and its crossings found once instead of three times. ``intervals``
-    may pass in an analysis already made for the same plant, K and entry.
+
+@dataclass(eq=False)
+class _EntryRecord:
+    """The value-free analysis of one entry: family at k_ij = 0, its intervals, loci by range."""
+
+    family: RankOneFamily
+    analysis: StableIntervals
+    loci: OrderedDict  # (low, high) -> (values, poles, evaluation_count, span), all read-only
+
+
+_ENTRY_RECORDS: weakref.WeakKeyDictionary = weakref.WeakKeyDictionary()
+_ENTRY_RECORDS_LOCK = threading.Lock()
+
+
+def _clear_entry_records() -> None:
+    """Forget every kept analysis (tests use it to compare with uncached results)."""
+    with _ENTRY_RECORDS_LOCK:
+        _ENTRY_RECORDS.clear()
+
+
+def _entry_record(plant: Plant, gain: np.ndarray, row: int, col: int, use_cache: bool) -> _EntryRecord:
+    zeroed = gain.copy()
+    zeroed[row, col] = 0.0
+    key = (row, col, zeroed.tobytes())
+    if use_cache:
+        with _ENTRY_RECORDS_LOCK:
+            records = _ENTRY_RECORDS.get(plant)
+            record = records.get(key) if records is not None else None
+            if record is not None:
+                records.move_to_end(key)
+                return record
+    family = _entry_family(plant, zeroed, row, col)
+    record = _EntryRecord(family, _analyze_family(plant, family, row, col), OrderedDict())
+    if use_cache:
+        with _ENTRY_RECORDS_LOCK:
+            records = _ENTRY_RECORDS.setdefault(plant, OrderedDict())
+            # another thread may have stored the same analysis meanwhile: keep the first one
+            record = records.setdefault(key, record)
+            records.move_to_end(key)
+            while len(records) > _FAMILIES_PER_PLANT:
+                records.popitem(last=False)
+    return record
+
+
+def _reference_locus(record: _EntryRecord, low: float, high: float, use_cache: bool):
+    """Locus samples of the family over [low, high] without the current value (cached per range)."""
+    key = (low, high)
+    if use_cache:
+        with _ENTRY_RECORDS_LOCK:
+            found = record.loci.get(key)
+            if found is not None:
+                record.loci.move_to_end(key)
+                return found
+    inside = _crossings_inside(record.analysis, low, high)
+    sampled = adaptive_locus(record.family.poles, low, high, [c.gain for c in inside])
+    found = (read_only(sampled.values), read_only(sampled.poles), sampled.evaluation_count, sampled.span)
+    if use_cache:
+        with _ENTRY_RECORDS_LOCK:
+            found = record.loci.setdefault(key, found)
+            record.loci.move_to_end(key)
+            while len(record.loci) > _RANGES_PER_FAMILY:
+                record.loci.popitem(last=False)
+    return found
+
+
+def _intervals_at(record: _EntryRecord, value: float) -> StableIntervals:
+    """The entry's intervals with the current value and its verdict filled in."""
+    _, counts = _poles_and_counts(record.family, np.array([value]))
+    return replace(record.analysis, current_value=value, current_is_stable=bool(counts[0] == 0),
+                   gain_tolerance=gain_tolerance(record.family, value))
+
+
+def _locus_at(plant: Plant, record: _EntryRecord, analysis: StableIntervals, row: int, col: int,
+              low: float, high: float, use_cache: bool) -> EntryLocus:
+    """The range's locus with the current value's sample added (matched to its left neighbour)."""
+    values, poles, evaluation_count, span = _reference_locus(record, low, high, use_cache)
+    value = analysis.current_value
+    place = int(np.searchsorted(values, value))
+    if low < value < high and values[place] != value:
+        here = record.family.poles(np.array([value]))[0]
+        here = here[match_to(poles[place - 1], here)]
+        values = np.insert(values, place, value)
+        poles = np.insert(poles, place, here, axis=0)
+        evaluation_count += 1
+        span = plot_span(poles)
+    return EntryLocus(
+        entry=(row, col),
+        gains=read_only(values),
+        poles=read_only(poles),
+        start_poles=read_only(poles[0]),
+        end_poles=read_only(poles[-1]),
+        crossings=_crossings_inside(analysis, low, high),
+        current_value=value,
+        evaluation_count=evaluation_count,
+        span=span,
+        sampled=plant.is_sampled,
+    )
+
+
+def _coarse_range(family: RankOneFamily, analysis: StableIntervals) -> tuple[float, float]:
+    """The automatic locus range of the selected entry, constant while the value moves a little.
+
+    Like :func:`default_entry_range`, but the half-width max(3·|value|, natural
+    scale) is rounded up to a power of two W and the centre is the multiple of W/2
+    nearest to the value, so the range [centre − W, centre + W] (widened to the
+    nearest stable interval's finite ends within 20·W, then padded by 10 %) keeps
+    the value at least 3W/4 from its ends and only changes when the value leaves the
+    middle half of the range, its size doubles, or it enters another interval.
+    """
+    current = analysis.current_value
+    width = max(3.0 * abs(current), family.gain_scale)
+    if width < 1e300:  # beyond that the next power of two would overflow
+        width = 2.0 ** math.ceil(math.log2(width))
+    centre = round(current / (0.5 * width)) * (0.5 * width)
+    anchors = [centre - width, centre + width]
+    if analysis.intervals:
+        nearest = min(
+            analysis.intervals,
+            key=lambda iv: 0.0 if iv[0] < current < iv[1] else min(abs(current - iv[0]), abs(current - iv[1])),
+        )
+        for end in nearest:
+            if math.isfinite(end) and abs(end - centre) <= 20.0 * width:
+                anchors.append(end)
+    low, high = min(anchors), max(anchors)
+    pad = 0.1 * (high - low)
+    return (low - pad, high + pad)
+
+
+def _entry_views(plant: Plant, K, row: int, col: int, entry_range=None,
+                 use_cache: bool = True) -> tuple[StableIntervals, EntryLocus]:
+    """Stable intervals and locus of one entry, reused while only that entry changes.
+
+    The family is built from A_z = A − B·K with K[row, col] set to zero, so the
+    crossings, intervals and locus samples depend on (plant, A_z, entry, range) and
+    not on the current value; they are kept per plant (a few gain matrices and ranges
+    each) and ``use_cache=False`` computes the same results afresh. The locus covers
+    ``entry_range``, or, when ``None``, the coarse automatic range of
+    :func:`_coarse_range`, and always holds a sample at the current value when it
+    lies inside the range. The results agree with :func:`entry_stable_intervals` and
+    :func:`entry_locus` up to rounding (those start from the current closed loop).
     """
     gain, row, col = _checked_entry(plant, K, row, col)
-    family = _entry_family(plant, gain, row, col)
-    analysis = intervals if intervals is not None else _analyze_family(plant, family, row, col)
-    if entry_range is None:
-        low, high = _range_of_family(family, analysis)
-    else:
+    if entry_range is not None:
         low, high = _checked_range(*entry_range, f"sweep of {_entry_label(plant, row, col)}")
-    return analysis, _locus_of_family(plant, family, analysis, row, col, low, high)
+    record = _entry_record(plant, gain, row, col, use_cache)
+    analysis = _intervals_at(record, float(gain[row, col]))
+    if entry_range is None:
+        low, high = _coarse_range(record.family, analysis)
+    return analysis, _locus_at(plant, record, analysis, row, col, low, high, use_cache)
