@@ -538,28 +538,8 @@ class DesignState(param.Parameterized):
         self.end_gesture()
 
     def closed_loop_movable(self) -> tuple[bool, ...]:
-        """For each closed-loop pole (in ``evaluation.closed_loop.poles`` order), whether a gain can move it.
-
-        Feedback never changes which modes are uncontrollable, so the core's structure
-        analysis of the closed loop (A − BK, B) marks exactly the poles no gain moves;
-        the core's optimal pairing lines its poles up with the evaluation's.
-        """
-        evaluation = self.evaluation
-        cached = getattr(self, "_movable_cache", None)
-        if cached is not None and cached[0] is evaluation:
-            return cached[1]
-        poles = np.asarray(evaluation.closed_loop.poles, dtype=complex)
-        if evaluation.structure.controllable:
-            movable = (True,) * len(poles)
-        else:
-            loop = core.Plant(A=core.closed_loop_matrix(evaluation.plant, evaluation.gain), B=evaluation.plant.B)
-            structure = core.analyze_structure(loop)
-            ordered, matched, _ = core.match_poles(poles, structure.open_loop_poles)
-            flag_of = {complex(p): bool(m) for p, m in zip(structure.open_loop_poles, structure.pole_movable)}
-            by_pole = {complex(p): flag_of[complex(q)] for p, q in zip(ordered, matched)}
-            movable = tuple(by_pole[complex(p)] for p in poles)
-        self._movable_cache = (evaluation, movable)
-        return movable
+        """For each closed-loop pole (in ``evaluation.closed_loop.poles`` order), whether a gain can move it."""
+        return self.evaluation.closed_loop_movable
 
     def place_poles(self, targets) -> bool:
         """Compute K by pole assignment for a full list of target poles (typed in)."""

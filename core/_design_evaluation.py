@@ -12,7 +12,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ._closed_loop import ClosedLoopReport, analyze_closed_loop, analyze_open_loop
+from ._closed_loop import ClosedLoopReport, analyze_closed_loop, analyze_open_loop, closed_loop_matrix, match_poles
 from ._errors import GainboardError, GainError
 from ._margins import loop_margins
 from ._plant import Plant
@@ -93,6 +93,8 @@ class DesignEvaluation:
         Pass/fail per spec.
     pole_region : PoleRegion or None
         Where the specs want the closed-loop poles.
+    closed_loop_movable : tuple of bool
+        For each pole of ``closed_loop.poles`` (same order), whether some gain can move it.
     messages : tuple of str
         Warnings for the user (conditioning, divergence, steps that cannot be computed).
     """
@@ -112,6 +114,7 @@ class DesignEvaluation:
     specs: DesignSpecs | None
     spec_report: object | None
     pole_region: object | None
+    closed_loop_movable: tuple[bool, ...] = field(default=())
     messages: tuple[str, ...] = field(default=())
 
 
@@ -131,6 +134,24 @@ def _plant_analysis(plant: Plant) -> tuple[StructureReport, ClosedLoopReport]:
         with _PLANT_RESULTS_LOCK:
             _PLANT_RESULTS[plant] = cached
     return cached
+
+
+def _closed_loop_movable(plant: Plant, K: np.ndarray, structure: StructureReport,
+                         closed_loop: ClosedLoopReport) -> tuple[bool, ...]:
+    """Which closed-loop poles some gain can move, in ``closed_loop.poles`` order.
+
+    Feedback never changes which modes are uncontrollable (the PBH rank of [λI − A + BK, B]
+    equals that of [λI − A, B]), so the structure analysis of (A − BK, B) marks exactly the
+    poles no gain moves; optimal pairing lines its poles up with the closed-loop report's.
+    """
+    poles = np.asarray(closed_loop.poles, dtype=complex)
+    if structure.controllable:
+        return (True,) * len(poles)
+    loop = analyze_structure(Plant(A=closed_loop_matrix(plant, K), B=plant.B))
+    ordered, matched, _ = match_poles(poles, loop.open_loop_poles)
+    movable_at = {complex(p): bool(m) for p, m in zip(loop.open_loop_poles, loop.pole_movable)}
+    by_pole = {complex(p): movable_at[complex(q)] for p, q in zip(ordered, matched)}
+    return tuple(by_pole[complex(p)] for p in poles)
 
 
 def _check_entry(plant: Plant, entry) -> tuple[int, int]:
@@ -224,5 +245,6 @@ def evaluate_design(plant: Plant, gain, options: EvaluationOptions | None = None
         specs=specs,
         spec_report=spec_report,
         pole_region=region,
+        closed_loop_movable=_closed_loop_movable(plant, K, structure, closed_loop),
         messages=tuple(messages),
     )
