@@ -38,18 +38,18 @@ __all__ = [
 _EPS = np.finfo(float).eps
 
 
-def _as_pole_array(poles, what: str = "poles") -> np.ndarray:
-    """Turn user data into a flat complex array, or explain why not."""
+def _as_pole_array(poles, what: str = "poles", error: type[Exception] = AnalysisError) -> np.ndarray:
+    """Turn user data into a flat complex array, or raise ``error`` saying why not."""
     if isinstance(poles, (str, bytes)):
-        raise AnalysisError(f"{what} must be a list of numbers, but the string {poles!r} was given")
+        raise error(f"{what} must be a list of numbers, but the string {poles!r} was given")
     try:
         values = np.asarray(poles, dtype=complex)
     except (TypeError, ValueError):
-        raise AnalysisError(f"{what} must be a flat list of (complex) numbers, got {poles!r}") from None
+        raise error(f"{what} must be a flat list of (complex) numbers, got {poles!r}") from None
     if values.ndim == 0:
         values = values.reshape(1)
     if values.ndim != 1:
-        raise AnalysisError(f"{what} must be a flat list of numbers, but an array of shape {values.shape} was given")
+        raise error(f"{what} must be a flat list of numbers, but an array of shape {values.shape} was given")
     return values.copy()
 
 

@@ -31,6 +31,7 @@ import scipy.signal
 
 from ._arrays import read_only
 from ._closed_loop import (
+    _as_pole_array,
     _default_conjugate_tolerance,
     _matching_indices,
     _pair_conjugates,
@@ -170,16 +171,7 @@ class _MethodFailed(Exception):
 
 
 def _prepare_targets(targets, n: int, complete_conjugates: bool) -> tuple[np.ndarray, list[str]]:
-    if isinstance(targets, (str, bytes)):
-        raise PlacementError(f"the target poles must be a list of numbers, but the string {targets!r} was given")
-    try:
-        values = np.asarray(targets, dtype=complex)
-    except (TypeError, ValueError):
-        raise PlacementError(f"the target poles must be a flat list of (complex) numbers, got {targets!r}") from None
-    if values.ndim == 0:
-        values = values.reshape(1)
-    if values.ndim != 1:
-        raise PlacementError(f"the target poles must be a flat list of numbers, but an array of shape {values.shape} was given")
+    values = _as_pole_array(targets, "the target poles", PlacementError)
     for position, value in enumerate(values):
         if not np.isfinite(value):
             raise PlacementError(
