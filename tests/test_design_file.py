@@ -33,21 +33,10 @@ from gainboard.app.design_file import (
     load_design,
     save_design,
 )
+from pole_references import NAMED_REFERENCE_PLANT
 
-# Reference-cases.md case 1: companion form of s³ + 6s² + 5s + 1 with K = [199, 55, 8] for poles −2±4j, −10;
-# Ogata, Modern Control Engineering, 5th ed., Example 10-1 (from memory). Names and units are invented.
-THIRD_ORDER = core.Plant(
-    A=[[0.0, 1.0, 0.0], [0.0, 0.0, 1.0], [-1.0, -5.0, -6.0]],
-    B=[[0.0], [0.0], [1.0]],
-    C=[[1.0, 0.0, 0.0]],
-    name="third-order test plant",
-    state_names=("position", "velocity", "acceleration"),
-    state_units=("m", "m/s", "m/s²"),
-    input_names=("drive force",),
-    input_units=("N",),
-    output_names=("position",),
-    output_units=("m",),
-)
+# Reference-cases.md case 1 (Ogata, Modern Control Engineering, 5th ed., Example 10-1, from memory).
+THIRD_ORDER = NAMED_REFERENCE_PLANT
 OGATA_GAIN = [[199.0, 55.0, 8.0]]
 
 

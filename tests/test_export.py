@@ -38,25 +38,15 @@ from gainboard.app.export import (
     export_json,
     export_python,
 )
+from pole_references import NAMED_REFERENCE_PLANT
 
 COMPILER = shutil.which("cc") or shutil.which("gcc")
 needs_compiler = pytest.mark.skipif(COMPILER is None, reason="no C compiler (cc or gcc) on PATH to compile the exported header")
 C_FLAGS = ["-std=c99", "-Wall", "-Wextra", "-Werror", "-pedantic", "-O0"]
 EPS = np.finfo(float).eps
 
-# Reference-cases.md case 1 (Ogata Example 10-1, from memory); names and units invented.
-THIRD_ORDER = core.Plant(
-    A=[[0.0, 1.0, 0.0], [0.0, 0.0, 1.0], [-1.0, -5.0, -6.0]],
-    B=[[0.0], [0.0], [1.0]],
-    C=[[1.0, 0.0, 0.0]],
-    name="third-order test plant",
-    state_names=("position", "velocity", "acceleration"),
-    state_units=("m", "m/s", "m/s²"),
-    input_names=("drive force",),
-    input_units=("N",),
-    output_names=("position",),
-    output_units=("m",),
-)
+# Reference-cases.md case 1 (Ogata, Modern Control Engineering, 5th ed., Example 10-1, from memory).
+THIRD_ORDER = NAMED_REFERENCE_PLANT
 OGATA = Design(plant=THIRD_ORDER, gain=[[199.0, 55.0, 8.0]])
 
 HOSTILE_NAMES = (
