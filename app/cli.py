@@ -47,17 +47,10 @@ def _join_negative_values(argv: list[str]) -> list[str]:
 
 def resolve_plant(reference: str) -> core.Plant:
     """Load a plant from a file path or the stem of a bundled plant (e.g. ``cart_pendulum``)."""
-    path = Path(reference)
-    if path.exists() or path.suffix == ".toml" or "/" in reference:
-        return core.load_plant_file(path)
-    from gainboard.sample_plants import bundled_plant_files
+    from gainboard.sample_plants import resolve_plant_reference
 
-    bundled = bundled_plant_files()
-    if reference in bundled:
-        return core.load_plant_file(bundled[reference])
-    raise UsageError(
-        f"no plant file {reference!r} and no bundled plant of that name; bundled plants: {', '.join(sorted(bundled))}"
-    )
+    path, _ = resolve_plant_reference(reference)
+    return core.load_plant_file(path)
 
 
 def parse_poles(text: str) -> list[complex]:

@@ -129,22 +129,9 @@ def plant_from_reference(reference: str | None) -> tuple[core.Plant, str, str]:
     PlantError
         If the file is broken or no bundled plant has that name.
     """
-    bundled = bundled_plants()
-    if reference is None:
-        if not bundled:
-            raise core.PlantError("no bundled plants are installed; give a plant file to open")
-        reference = next(iter(bundled))
-    path = Path(reference)
-    if not (path.exists() or path.suffix == ".toml" or "/" in reference):
-        if reference not in bundled:
-            raise core.PlantError(
-                f"no plant file {reference!r} and no bundled plant of that name; "
-                f"bundled plants: {', '.join(bundled) or 'none'}"
-            )
-        path = bundled[reference]
-        label = reference
-    else:
-        label = path.name
+    from gainboard.sample_plants import resolve_plant_reference
+
+    path, label = resolve_plant_reference(reference)
     plant = core.load_plant_file(path)
     return plant, label, path.read_text(encoding="utf-8")
 

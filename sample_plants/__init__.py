@@ -22,7 +22,7 @@ from pathlib import Path
 
 from gainboard.core import Plant, PlantError, load_plant_file
 
-__all__ = ["bundled_plant_files", "load_bundled_plant"]
+__all__ = ["bundled_plant_files", "load_bundled_plant", "resolve_plant_reference"]
 
 #: The directory of this package, where the plant files are installed beside this module.
 _PLANT_DIRECTORY = Path(__file__).resolve().parent
@@ -64,3 +64,38 @@ def load_bundled_plant(stem: str) -> Plant:
         known = ", ".join(files) or "(none installed)"
         raise PlantError(f"there is no bundled plant called {stem!r}; the bundled plants are: {known}")
     return load_plant_file(files[stem])
+
+
+def resolve_plant_reference(reference: str | None) -> tuple[Path, str]:
+    """Find the plant file meant by a path or a bundled plant's name.
+
+    Parameters
+    ----------
+    reference : str or None
+        A path to a TOML plant file (anything that exists, ends in ``.toml`` or
+        contains ``/``), the stem of a bundled plant, or None for the first bundled plant.
+
+    Returns
+    -------
+    (pathlib.Path, str)
+        The file and a short label: the stem for a bundled plant, else the file name.
+
+    Raises
+    ------
+    PlantError
+        If the name is neither a file nor a bundled plant; the message lists the bundled ones.
+    """
+    bundled = bundled_plant_files()
+    if reference is None:
+        if not bundled:
+            raise PlantError("no bundled plants are installed; give a plant file to open")
+        reference = next(iter(bundled))
+    path = Path(reference)
+    if path.exists() or path.suffix == ".toml" or "/" in reference:
+        return path, path.name
+    if reference not in bundled:
+        raise PlantError(
+            f"no plant file {reference!r} and no bundled plant of that name; "
+            f"bundled plants: {', '.join(bundled) or 'none'}"
+        )
+    return bundled[reference], reference
