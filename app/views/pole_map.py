@@ -40,6 +40,7 @@ from gainboard import core
 
 from ..scheduling import guarded
 from ..theme import LOCUS_RAMP, MARKERS, PALETTE, entry_symbol, format_complex, format_number
+from .data_sources import update_source
 from .html_box import HtmlBox
 
 __all__ = ["PoleMap", "entry_symbol"]
@@ -85,6 +86,7 @@ class PoleMap:
         self.region_source = ColumnDataSource({"xs": [], "ys": []})
         self.unit_disk_source = ColumnDataSource({"x": [], "y": []})
         self.locus_source = ColumnDataSource({"x0": [], "y0": [], "x1": [], "y1": [], "gain": []})
+        self._drawn_locus = None  # (entry, gains, poles) last sent to the browser
         self.arrow_source = ColumnDataSource({"x_start": [], "y_start": [], "x_end": [], "y_end": []})
         self.open_source = ColumnDataSource({"x": [], "y": []})
         self.pinned_source = ColumnDataSource({"x": [], "y": []}, name="pinned_poles")
@@ -190,7 +192,7 @@ class PoleMap:
             self._fit(evaluation)
 
         x, y = _xy(evaluation.open_loop.poles)
-        self.open_source.data = {"x": x, "y": y}
+        update_source(self.open_source, {"x": x, "y": y})
         self._refresh_region(evaluation)
         self._refresh_locus(evaluation)
         self._refresh_arrows(evaluation)
@@ -205,15 +207,15 @@ class PoleMap:
         """Ghost poles of the pinned design and the LQR design."""
         pinned = self.state.pinned
         x, y = _xy(pinned.closed_loop.poles) if pinned is not None and pinned.plant is self._plant else ([], [])
-        self.pinned_source.data = {"x": x, "y": y}
+        update_source(self.pinned_source, {"x": x, "y": y})
         lqr = self.state.lqr_poles
         x, y = _xy(lqr) if lqr is not None else ([], [])
-        self.lqr_source.data = {"x": x, "y": y}
+        update_source(self.lqr_source, {"x": x, "y": y})
 
     def _configure_plane(self, sampled: bool) -> None:
         self.unstable_box.visible = not sampled
         self.vertical_axis.visible = not sampled
-        self.unit_disk_source.data = {"x": [0.0], "y": [0.0]} if sampled else {"x": [], "y": []}
+        update_source(self.unit_disk_source, {"x": [0.0], "y": [0.0]} if sampled else {"x": [], "y": []})
         if sampled:
             self.figure.xaxis.axis_label = "real part of z"
             self.figure.yaxis.axis_label = "imaginary part of z"
@@ -235,14 +237,14 @@ class PoleMap:
         self._shown_poles = [complex(a, b) for a, b in zip(x, y)]
         self._setting_poles = True
         try:
-            self.closed_source.data = {"x": x, "y": y, "label": labels, "zeta": zetas, "wn": frequencies,
-                                       "tau": taus, "movable": notes}
+            update_source(self.closed_source, {"x": x, "y": y, "label": labels, "zeta": zetas,
+                                               "wn": frequencies, "tau": taus, "movable": notes})
             self.closed_source.selected.indices = []
         finally:
             self._setting_poles = False
         fx = [a for a, can_move in zip(x, movable) if not can_move]
         fy = [b for b, can_move in zip(y, movable) if not can_move]
-        self.fixed_source.data = {"x": fx, "y": fy}
+        update_source(self.fixed_source, {"x": fx, "y": fy})
 
     def _preview_partner(self) -> None:
         """While dragging, move the conjugate partner's marker; the dragged one is the tool's."""
@@ -265,40 +267,51 @@ class PoleMap:
     def _refresh_region(self, evaluation) -> None:
         region = evaluation.pole_region
         if region is None:
-            self.region_source.data = {"xs": [], "ys": []}
+            update_source(self.region_source, {"xs": [], "ys": []})
             return
         x0, x1, y0, y1 = self._view
         extent = 2.0 * max(abs(x0), abs(x1), abs(y0), abs(y1), 1e-9)
         outlines = core.region_boundary(region, extent)
-        self.region_source.data = {
+        update_source(self.region_source, {
             "xs": [np.asarray(x, dtype=float) for x, _ in outlines],
             "ys": [np.asarray(y, dtype=float) for _, y in outlines],
-        }
+        })
 
     def _refresh_locus(self, evaluation) -> None:
         locus = evaluation.selected_locus
         if locus is None or len(locus.gains) < 2:
-            self.locus_source.data = {"x0": [], "y0": [], "x1": [], "y1": [], "gain": []}
+            self._drawn_locus = None
+            update_source(self.locus_source, {"x0": [], "y0": [], "x1": [], "y1": [], "gain": []})
             return
         poles = np.asarray(locus.poles, dtype=complex)
         gains = np.asarray(locus.gains, dtype=float)
+        # The core adds the current value's sample to the locus; it is left out of the drawing
+        # (the closed-loop markers show it), so the drawn locus stays the same while only the
+        # selected entry moves and is not sent to the browser again on every slider step.
+        inside = np.flatnonzero(gains[1:-1] == locus.current_value) + 1
+        if inside.size == 1:
+            poles, gains = np.delete(poles, inside, axis=0), np.delete(gains, inside)
+        if (self._drawn_locus is not None and self._drawn_locus[0] == locus.entry
+                and np.array_equal(self._drawn_locus[1], gains) and np.array_equal(self._drawn_locus[2], poles)):
+            return
+        self._drawn_locus = (locus.entry, gains, poles)
         start, end = poles[:-1, :], poles[1:, :]
         # one segment per branch and step, coloured by the gain at its start
         segment_gain = np.repeat(gains[:-1, None], poles.shape[1], axis=1)
         finite = np.isfinite(start) & np.isfinite(end)
         self.color_mapper.update(low=float(gains[0]), high=float(gains[-1]))
-        self.locus_source.data = {
+        update_source(self.locus_source, {
             # numpy arrays travel to the browser as binary buffers (lists are encoded number by number)
             "x0": start.real[finite], "y0": start.imag[finite],
             "x1": end.real[finite], "y1": end.imag[finite],
             "gain": segment_gain[finite],
-        }
+        })
 
     def _refresh_arrows(self, evaluation) -> None:
         sensitivity = evaluation.sensitivity
         empty = {"x_start": [], "y_start": [], "x_end": [], "y_end": []}
         if sensitivity is None:
-            self.arrow_source.data = empty
+            update_source(self.arrow_source, empty)
             return
         _, _, y0, y1 = self._view
         length = ARROW_FRACTION * (y1 - y0)
@@ -313,7 +326,7 @@ class PoleMap:
             data["y_start"].append(pole.imag)
             data["x_end"].append(tip.real)
             data["y_end"].append(tip.imag)
-        self.arrow_source.data = data
+        update_source(self.arrow_source, data)
 
     def _refresh_legend(self, evaluation) -> None:
         locus = evaluation.selected_locus

@@ -17,6 +17,7 @@ from bokeh.plotting import figure
 
 from ..theme import PALETTE, format_number, trace_colour
 from .html_box import HtmlBox
+from .plot_ranges import steady_time_end, steady_value_range
 
 __all__ = ["ResponsePlots", "RESPONSE_KINDS"]
 
@@ -24,6 +25,8 @@ __all__ = ["ResponsePlots", "RESPONSE_KINDS"]
 RESPONSE_KINDS = {"Initial condition": "initial", "Reference step": "step", "Disturbance": "disturbance"}
 
 PLOT_WIDTH = 420
+#: Height of the response description: three lines of .gb-note text.
+DESCRIPTION_HEIGHT = 52
 
 
 def _empty_lines():
@@ -58,14 +61,14 @@ class ResponsePlots:
         self.input_figure = self._figure("actuator effort", "input", 165, name="response_inputs")
         self.input_figure.x_range = self.output_figure.x_range
         for fig, source in ((self.output_figure, self.output_source), (self.input_figure, self.input_source)):
-            traces = fig.multi_line("xs", "ys", source=source, line_color="colour", line_dash="dash",
-                                    line_alpha="alpha", line_width="width")
-            # Scale to the traces: limit lines far away would flatten a small effort into a line.
-            fig.y_range.renderers = [traces]
+            fig.multi_line("xs", "ys", source=source, line_color="colour", line_dash="dash",
+                           line_alpha="alpha", line_width="width")
         self.input_figure.multi_line("xs", "ys", source=self.limit_source, line_color="colour",
                                      line_dash="dotted", line_width=1.6, line_alpha=0.9)
         self.legend = HtmlBox(css=_css(), width=PLOT_WIDTH + 40)
-        self.description = HtmlBox(css=_css(), width=PLOT_WIDTH + 40)
+        # Fixed height (three lines, then a scroll bar): limit warnings come and go while a
+        # slider moves, and a box that changes height makes the browser lay out the page again.
+        self.description = HtmlBox(css=_css(), width=PLOT_WIDTH + 40, height=DESCRIPTION_HEIGHT)
         self.metrics = HtmlBox(css=_css(), width=PLOT_WIDTH + 40, margin=(2, 5))
         self.kind.param.watch(lambda event: self.refresh(self.state.evaluation), "value")
         self.panel = pn.Column(
@@ -80,7 +83,8 @@ class ResponsePlots:
 
     def _figure(self, title: str, what: str, height: int, name: str):
         fig = figure(
-            width=PLOT_WIDTH + 40, height=height, x_range=Range1d(0, 1), tools="xwheel_zoom,xpan,reset",
+            width=PLOT_WIDTH + 40, height=height, x_range=Range1d(0, 1), y_range=Range1d(-1, 1),
+            tools="xwheel_zoom,xpan,reset",
             toolbar_location=None, name=name, background_fill_color="#fdfcf9",
             border_fill_color=PALETTE["paper"], outline_line_color=PALETTE["rule"],
         )
@@ -102,8 +106,8 @@ class ResponsePlots:
     def kind_name(self) -> str:
         return RESPONSE_KINDS[self.kind.value]
 
-    def refresh(self, evaluation) -> None:
-        """Redraw the chosen response of ``evaluation`` (and of the pinned design)."""
+    def refresh(self, evaluation, *, texts: bool = True) -> None:
+        """Redraw the chosen response of ``evaluation`` (and of the pinned design); ``texts=False``: plots only."""
         kind = self.kind_name
         response = _response_of(evaluation, kind)
         plant = evaluation.plant
@@ -114,6 +118,10 @@ class ResponsePlots:
         if response is not None:
             time = _finite_list(response.time)
             end_time = max(float(time[-1]) if time.size else 1.0, 1e-9)
+        # Ranges move in whole steps only (see plot_ranges) and follow the traces, not the
+        # limit lines: a limit far away would flatten a small effort into a line.
+        end_time = steady_time_end(end_time)
+        if response is not None:
             self._add_traces(outputs, response.time, response.outputs, response.saturated_outputs, ghost, "outputs")
             self._add_traces(inputs, response.time, response.inputs, response.saturated_inputs, ghost, "inputs")
             if plant.input_limits is not None:
@@ -124,10 +132,14 @@ class ResponsePlots:
                             limits["ys"].append([level, level])
                             limits["colour"].append(trace_colour(j))
         self.output_figure.x_range.update(start=0.0, end=end_time, reset_start=0.0, reset_end=end_time)
+        for fig, lines in ((self.output_figure, outputs), (self.input_figure, inputs)):
+            low, high = steady_value_range(lines["ys"])
+            fig.y_range.update(start=low, end=high, reset_start=low, reset_end=high)
         self.output_source.data = outputs
         self.input_source.data = inputs
         self.limit_source.data = limits
-        self._refresh_text(evaluation, response, ghost is not None)
+        if texts:
+            self._refresh_text(evaluation, response, ghost is not None)
 
     def _add_traces(self, lines, time, linear, saturated, ghost, which: str) -> None:
         time = _finite_list(time)
@@ -197,7 +209,7 @@ class ResponsePlots:
                     )
         if responses is not None and responses.diverging and responses.diverging_reason:
             notes.append(f'<span class="gb-fail">Unstable: {escape(responses.diverging_reason)}</span>')
-        self.description.object = '<div class="gb-note">' + "<br>".join(notes) + "</div>"
+        self.description.object = '<div class="gb-note gb-description">' + "<br>".join(notes) + "</div>"
         self.metrics.object = self._metrics_table(response)
 
     def _metrics_table(self, response) -> str:
@@ -230,6 +242,7 @@ def _css() -> str:
 .gb-legend {{ font-size: 11.5px; color: {PALETTE['muted']}; line-height: 1.5; }}
 .gb-legend .sw {{ display: inline-block; width: 12px; height: 4px; margin: 0 3px 2px 8px; vertical-align: middle; }}
 .gb-note {{ font-size: 12px; color: {PALETTE['ink']}; line-height: 1.4; }}
+.gb-description {{ height: {DESCRIPTION_HEIGHT}px; overflow-y: auto; }}
 .gb-fail {{ color: {PALETTE['fail']}; font-weight: 600; }}
 table.gb-table {{ border-collapse: collapse; font-size: 12px; width: 100%; }}
 table.gb-table th {{ text-align: left; font-weight: 600; color: {PALETTE['muted']};
