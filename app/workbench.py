@@ -18,6 +18,7 @@ arrives from the room is applied inside this session's own document callback.
 from __future__ import annotations
 
 import logging
+import math
 import secrets
 import threading
 import time
@@ -47,6 +48,9 @@ from .views.tables import TABLE_CSS, ChecksTable, PoleTable
 
 __all__ = ["Workbench", "build_workbench", "open_session", "configure_panel", "NAME_PARAMETER"]
 
+#: While a design is dragged, tables and texts are redrawn at most this often (s); the
+#: plots follow every step.
+TEXT_REFRESH_INTERVAL = 0.25
 #: Query parameter giving the name shown to others in a live room.
 NAME_PARAMETER = "name"
 #: Longest query-parameter value read (a snapshot has its own, smaller limit).
@@ -170,6 +174,9 @@ class Workbench:
         self.fit_button = pn.widgets.Button(label="Fit view", width=80, margin=(2, 5))
         self.fit_button.on_click(lambda event: self.pole_map.fit_view())
         self._entry_syncing = False
+        self._texts_shown_at = -math.inf  # when the tables and texts were last refreshed (monotonic s)
+        self._texts_stale = False
+        self._texts_scheduled = False
 
         state.param.watch(self._on_evaluation, "evaluation")
         state.param.watch(self._on_comparison, ["pinned", "lqr_poles"])
@@ -238,19 +245,56 @@ class Workbench:
         )
 
     def _on_evaluation(self, *events) -> None:
+        # While a slider or pole is dragged the plots follow every step, but the tables and
+        # texts (a fifth of the server's time per step and most of the browser's page layout
+        # work) follow at most every TEXT_REFRESH_INTERVAL; they catch up when it ends and on
+        # release. Without a server session (tests) everything is refreshed at once.
         evaluation = self.state.evaluation
+        now = time.monotonic()
+        throttled = (self.document is not None and self.state.gesture_active
+                     and now - self._texts_shown_at < TEXT_REFRESH_INTERVAL)
         with pn.io.hold():
-            for view in self.views:
-                try:
-                    view.refresh(evaluation)
-                except Exception as error:  # one broken view must not blank the others
-                    log.exception("refreshing %s failed", type(view).__name__)
-                    self._report_unexpected(error)
-                    # The action that caused this evaluation may clear the message when it ends;
-                    # show the failure again once it has.
-                    self.run_in_session(lambda error=error: self._report_unexpected(error))
-            self._refresh_header(evaluation)
-            self._refresh_entry_choice(evaluation)
+            if throttled:
+                self._refresh_views(evaluation, plots_only=True)
+                self._texts_stale = True
+                self._schedule_texts(TEXT_REFRESH_INTERVAL - (now - self._texts_shown_at))
+            else:
+                self._refresh_views(evaluation, plots_only=False)
+
+    def _refresh_views(self, evaluation, *, plots_only: bool) -> None:
+        views = (self.pole_map,) if plots_only else self.views
+        for view in views:
+            try:
+                view.refresh(evaluation)
+            except Exception as error:  # one broken view must not blank the others
+                log.exception("refreshing %s failed", type(view).__name__)
+                self._report_unexpected(error)
+                # The action that caused this evaluation may clear the message when it ends;
+                # show the failure again once it has.
+                self.run_in_session(lambda error=error: self._report_unexpected(error))
+        if plots_only:
+            self.responses.refresh(evaluation, texts=False)
+            return
+        self._refresh_header(evaluation)
+        self._refresh_entry_choice(evaluation)
+        self._texts_shown_at = time.monotonic()
+        self._texts_stale = False
+
+    def _schedule_texts(self, delay: float) -> None:
+        if self._texts_scheduled:
+            return
+        self._texts_scheduled = True
+        document = self.document
+
+        def catch_up():
+            from panel.io.state import set_curdoc
+
+            self._texts_scheduled = False
+            if self._texts_stale and not self._closed:
+                with set_curdoc(document), pn.io.hold(document):
+                    self._guarded(lambda: self._refresh_views(self.state.evaluation, plots_only=False))
+
+        document.add_timeout_callback(catch_up, max(1, int(1000 * delay)))
 
     def _on_comparison(self, *events) -> None:
         evaluation = self.state.evaluation

@@ -73,6 +73,43 @@ def test_moving_a_gain_slider_shows_the_poles_the_core_computes(workbench):
     workbench.screenshot("03-slider-moved")
 
 
+# Counts changes of the outputs plot's data in the page (the plot is redrawn on each).
+_COUNT_PLOT_UPDATES = """() => {
+    window.__plotUpdates = 0;
+    const source = Bokeh.documents[0].get_model_by_name('response_outputs').renderers[0].data_source;
+    source.change.connect(() => { window.__plotUpdates += 1; });
+}"""
+
+
+def test_held_slider_redraws_plots_live_and_tables_catch_up_before_release(workbench):
+    plant = reference_plant()
+    workbench.set_gain_text(REFERENCE_GAIN)
+    workbench.wait_until_idle()
+    page = workbench.page
+    page.evaluate(_COUNT_PLOT_UPDATES)
+    handle = page.locator(".gb-slider-1-1 .noUi-handle")
+    box = handle.bounding_box()
+    x, y = box["x"] + box["width"] / 2, box["y"] + box["height"] / 2
+    page.mouse.move(x, y)
+    page.mouse.down()
+    for step in range(1, 6):
+        x += 4
+        page.mouse.move(x, y)
+        # The plots follow each step while the mouse is held (the tables may lag behind).
+        workbench.wait_for(lambda: page.evaluate("() => window.__plotUpdates") >= step, f"plot update {step}")
+    slider_value = float(handle.get_attribute("aria-valuenow"))
+    # Still held: within the text refresh interval the K readout and the pole table show the
+    # latest step, and they agree with each other (numpy eig of A − BK is the outside reference).
+    workbench.wait_for(lambda: abs(workbench.gain()[0, 0] - slider_value) <= 1e-6 * abs(slider_value),
+                       "the K readout to catch up with the held slider")
+    held = workbench.snapshot()
+    assert matched_distance(held["poles"], numpy_closed_loop_poles(plant, held["gain"])) < 1e-8
+    page.mouse.up()
+    settled = workbench.settled_snapshot()
+    assert matched_distance(settled["poles"], numpy_closed_loop_poles(plant, settled["gain"])) < 1e-8
+    assert settled["gain"][0, 0] > 199.0, "moving the handle right must increase k11"
+
+
 def test_dragging_a_closed_loop_pole_assigns_it_to_the_drop_point(workbench):
     plant = reference_plant()
     workbench.set_gain_text(REFERENCE_GAIN)
