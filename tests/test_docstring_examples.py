@@ -1,4 +1,4 @@
-"""Run the Examples sections of the core's docstrings, so documentation cannot drift from the code."""
+"""Run the Examples sections of the docstrings (core and app), so documentation cannot drift from the code."""
 
 import doctest
 import importlib
@@ -6,9 +6,16 @@ import pkgutil
 
 import pytest
 
+import gainboard.app
+import gainboard.app.views
 import gainboard.core
 
-MODULES = sorted(info.name for info in pkgutil.iter_modules(gainboard.core.__path__, "gainboard.core."))
+MODULES = sorted(
+    info.name
+    for package in (gainboard.core, gainboard.app, gainboard.app.views)
+    for info in pkgutil.iter_modules(package.__path__, package.__name__ + ".")
+    if not info.ispkg
+)
 
 
 @pytest.mark.parametrize("module_name", MODULES)

@@ -37,10 +37,10 @@ def update_source(source, data: dict) -> bool:
     Examples
     --------
     >>> from bokeh.models import ColumnDataSource
-    >>> source = ColumnDataSource({"x": [1.0, 2.0], "y": [np.array([0.0, np.nan])]})
-    >>> update_source(source, {"x": [1.0, 2.0], "y": [np.array([0.0, np.nan])]})
+    >>> source = ColumnDataSource({"xs": [np.array([0.0, 1.0])], "ys": [np.array([0.0, np.nan])]})
+    >>> update_source(source, {"xs": [np.array([0.0, 1.0])], "ys": [np.array([0.0, np.nan])]})
     False
-    >>> update_source(source, {"x": [1.0, 2.5], "y": [np.array([0.0, np.nan])]})
+    >>> update_source(source, {"xs": [np.array([0.0, 1.5])], "ys": [np.array([0.0, np.nan])]})
     True
     """
     current = source.data
