@@ -23,6 +23,8 @@ from __future__ import annotations
 import contextlib
 import functools
 import logging
+import math
+import time
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -179,6 +181,11 @@ class DesignState(param.Parameterized):
     redo_depth = param.Integer(default=0, constant=True, doc="How many undone gain changes can be redone.")
     revision = param.Integer(default=0, constant=True,
                              doc="Counts evaluations; views and tests use it to know an update happened.")
+    details_pending = param.Boolean(
+        default=False, constant=True,
+        doc="True while the evaluation shown is a quick one taken during a drag: the stable intervals of the "
+            "entries are left out until complete_details() or the release computes them.",
+    )
 
     def __init__(self, plant: core.Plant, *, plant_label: str = "", plant_text: str = "", gain=None, **params):
         self._undo: list[np.ndarray] = []
@@ -187,6 +194,11 @@ class DesignState(param.Parameterized):
         self._drag = None
         self._failure: BaseException | None = None
         self._live = False
+        #: While dragging, evaluations within this many seconds of the last complete one leave out
+        #: the stable intervals of all entries (the slowest part for larger K); 0 keeps every
+        #: evaluation complete. A served workbench sets it (its tables catch up at that pace).
+        self.live_detail_interval = 0.0
+        self._details_at = -math.inf
         #: An object with get/put (see gainboard.app.rooms.SharedEvaluations) shared by the sessions
         #: of a live room, so that a design shown in several sessions is evaluated once; None: no sharing.
         self.evaluation_cache = None
@@ -200,7 +212,7 @@ class DesignState(param.Parameterized):
             plant=plant, plant_label=plant_label or plant.name, plant_text=plant_text,
             gain=starting_gain, specs=plant.specs, **params,
         )
-        evaluation = self._evaluate()  # a broken plant at start-up is the caller's error: let it raise
+        evaluation, _ = self._evaluate()  # a broken plant at start-up is the caller's error: let it raise
         with param.edit_constant(self):
             self.param.update(evaluation=evaluation, revision=1)
         self._reset_lqr_weights()
@@ -235,27 +247,33 @@ class DesignState(param.Parameterized):
     # -- the one place where derived results are computed -----------------------------------
 
     def _evaluate(self):
+        """(evaluation, quick): quick evaluations leave out the stable intervals of the entries."""
         # While a slider or pole is being dragged the margins are left out (they are not
         # drawn live and are the slowest part); the release evaluates everything.
+        now = time.monotonic()
+        quick = self._live and now - self._details_at < self.live_detail_interval
         cache, key = self.evaluation_cache, None
         if cache is not None:
             key = (id(self.plant), id(self.specs), self.gain.shape, self.gain.tobytes(), self.selected_entry,
-                   not self._live)
+                   not self._live, quick)
             found = cache.get(key, self.plant, self.specs)
             if found is not None:
-                return found
+                return found, quick
         options = core.EvaluationOptions(
             selected_entry=self.selected_entry, specs=self.specs, include_margins=not self._live,
+            include_all_entry_intervals=not quick,
         )
         evaluation = core.evaluate_design(self.plant, self.gain, options)
         if cache is not None:
             cache.put(key, self.plant, self.specs, evaluation)
-        return evaluation
+        if not quick:
+            self._details_at = now
+        return evaluation, quick
 
     def _recompute(self, *events):
         """Re-evaluate after any input changed; on failure restore the inputs and report."""
         try:
-            evaluation = self._evaluate()
+            evaluation, quick = self._evaluate()
         except Exception as error:  # any failure must leave the previous, consistent design
             with param.discard_events(self):
                 for event in events:
@@ -264,7 +282,18 @@ class DesignState(param.Parameterized):
             return
         self._failure = None
         with param.edit_constant(self):
-            self.param.update(evaluation=evaluation, revision=self.revision + 1)
+            self.param.update(evaluation=evaluation, details_pending=quick, revision=self.revision + 1)
+
+    def complete_details(self) -> None:
+        """Replace a quick drag-time evaluation by a complete one (nothing to do when none is pending)."""
+        if not self.details_pending:
+            return
+        live, self._live = self._live, True  # still the same gesture: margins wait for the release
+        self._details_at = -math.inf
+        try:
+            self._recompute()
+        finally:
+            self._live = live
 
     def _set_inputs(self, **changes) -> None:
         """Set inputs together (one evaluation) and raise the evaluation's error if it failed."""

@@ -175,8 +175,9 @@ class Workbench:
         self.fit_button.on_click(lambda event: self.pole_map.fit_view())
         self._entry_syncing = False
         self._texts_shown_at = -math.inf  # when the tables and texts were last refreshed (monotonic s)
-        self._texts_stale = False
-        self._texts_scheduled = False
+        self._details_scheduled = False
+        if document is not None:
+            state.live_detail_interval = TEXT_REFRESH_INTERVAL
 
         state.param.watch(self._on_evaluation, "evaluation")
         state.param.watch(self._on_comparison, ["pinned", "lqr_poles"])
@@ -247,17 +248,14 @@ class Workbench:
     def _on_evaluation(self, *events) -> None:
         # While a slider or pole is dragged the plots follow every step, but the tables and
         # texts (a fifth of the server's time per step and most of the browser's page layout
-        # work) follow at most every TEXT_REFRESH_INTERVAL; they catch up when it ends and on
-        # release. Without a server session (tests) everything is refreshed at once.
+        # work) and the stable intervals of all entries behind them (the slowest part for a
+        # larger K) follow at most every TEXT_REFRESH_INTERVAL: the state's quick evaluations
+        # leave the intervals out, and a timer asks it to complete them.
         evaluation = self.state.evaluation
-        now = time.monotonic()
-        throttled = (self.document is not None and self.state.gesture_active
-                     and now - self._texts_shown_at < TEXT_REFRESH_INTERVAL)
         with pn.io.hold():
-            if throttled:
+            if self.state.details_pending and self.document is not None:
                 self._refresh_views(evaluation, plots_only=True)
-                self._texts_stale = True
-                self._schedule_texts(TEXT_REFRESH_INTERVAL - (now - self._texts_shown_at))
+                self._schedule_details(TEXT_REFRESH_INTERVAL - (time.monotonic() - self._texts_shown_at))
             else:
                 self._refresh_views(evaluation, plots_only=False)
 
@@ -278,21 +276,20 @@ class Workbench:
         self._refresh_header(evaluation)
         self._refresh_entry_choice(evaluation)
         self._texts_shown_at = time.monotonic()
-        self._texts_stale = False
 
-    def _schedule_texts(self, delay: float) -> None:
-        if self._texts_scheduled:
+    def _schedule_details(self, delay: float) -> None:
+        if self._details_scheduled:
             return
-        self._texts_scheduled = True
+        self._details_scheduled = True
         document = self.document
 
         def catch_up():
             from panel.io.state import set_curdoc
 
-            self._texts_scheduled = False
-            if self._texts_stale and not self._closed:
+            self._details_scheduled = False
+            if self.state.details_pending and not self._closed:
                 with set_curdoc(document), pn.io.hold(document):
-                    self._guarded(lambda: self._refresh_views(self.state.evaluation, plots_only=False))
+                    self._guarded(self.state.complete_details)
 
         document.add_timeout_callback(catch_up, max(1, int(1000 * delay)))
 
