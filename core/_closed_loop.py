@@ -16,8 +16,8 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-import scipy.linalg
 import scipy.optimize
+from scipy.linalg import lapack as _lapack
 
 from ._arrays import read_only
 from ._errors import AnalysisError
@@ -76,6 +76,14 @@ def _pair_conjugates(values: np.ndarray, tolerance: float) -> tuple[np.ndarray, 
     cleaned[realish] = cleaned[realish].real
     upper = np.flatnonzero(imag > tolerance)
     lower = np.flatnonzero(imag < -tolerance)
+    if upper.size == lower.size and (
+        # LAPACK returns a real matrix's complex poles as exact conjugates, each pair adjacent
+        (np.array_equal(lower, upper + 1) and np.array_equal(cleaned[lower], np.conj(cleaned[upper])))
+        or np.array_equal(np.sort_complex(cleaned[upper]), np.sort_complex(np.conj(cleaned[lower])))
+    ):
+        # Already exact pairs: every pair has cost 0, so the assignment below would pair
+        # them and rebuild each one unchanged.
+        return cleaned, np.zeros(0, dtype=int)
     paired_upper: set[int] = set()
     paired_lower: set[int] = set()
     if upper.size and lower.size:
@@ -106,13 +114,12 @@ def _canonical_order(values: np.ndarray, tolerance: float = 0.0) -> np.ndarray:
     reorder a real pole and a complex pair with the same real part.
     """
     by_real = np.argsort(values.real, kind="stable")
-    group = np.zeros(values.size, dtype=int)
-    for position in range(1, values.size):
-        gap = values.real[by_real[position]] - values.real[by_real[position - 1]]
-        group[by_real[position]] = group[by_real[position - 1]] + (1 if gap > tolerance else 0)
     ordered = values[by_real]
+    # group number of each sorted pole: a new group starts wherever the gap exceeds the tolerance
+    real = ordered.real
+    group = np.concatenate(([0], np.cumsum(real[1:] - real[:-1] > tolerance)))
     # lexsort is stable, so exact ties keep their real-part order
-    return by_real[np.lexsort((-ordered.imag, np.abs(ordered.imag), group[by_real]))]
+    return by_real[np.lexsort((-ordered.imag, np.abs(ordered.imag), group))]
 
 
 def sort_poles(poles, *, tolerance: float | None = None) -> np.ndarray:
@@ -295,6 +302,129 @@ def _eigenvector_condition(vectors: np.ndarray) -> float:
     return float(singular[0] / singular[-1])
 
 
+# ---------------------------------------------------------------------------
+# One eigendecomposition shared by the pole report and the pole sensitivities
+# ---------------------------------------------------------------------------
+# The LAPACK routines below are the ones scipy.linalg.matrix_balance and scipy.linalg.eig
+# call, with the same arguments and the same workspace size, so the numbers are the same;
+# calling them directly skips per-call checks that cost more than the work itself for
+# the small matrices of an interactive update (tests compare with the scipy functions).
+_EIG_WORKSPACE: dict[int, int] = {}
+
+
+def _balance(matrix: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Permute and scale like LAPACK gebal: (D⁻¹P ᵀMPD, scaling d, inverse permutation).
+
+    The similarity is T = diag(d)[inverse, :] (as :func:`scipy.linalg.matrix_balance`
+    returns it), so T·v = (d·v)[inverse] and T⁻ᵀ·v = (v/d)[inverse] for a vector v.
+    """
+    balanced, lo, hi, pivots, info = _lapack.dgebal(matrix, scale=1, permute=1)
+    if info < 0:  # cannot happen for a finite square matrix
+        raise AnalysisError(f"balancing the state matrix failed (LAPACK gebal argument {-info})")
+    n = matrix.shape[0]
+    scaling = np.ones(n)
+    scaling[lo : hi + 1] = pivots[lo : hi + 1]
+    # gebal records its row/column swaps 1-based, the last ones first: replay them
+    swaps = pivots.astype(int) - 1
+    permutation = np.arange(n)
+    for offset, target in enumerate(swaps[hi + 1 :][::-1], 1):
+        if n - offset != target:
+            permutation[[target, n - offset]] = permutation[[n - offset, target]]
+    for position, target in enumerate(swaps[:lo]):
+        if position != target:
+            permutation[[target, position]] = permutation[[position, target]]
+    inverse = np.empty_like(permutation)
+    inverse[permutation] = np.arange(n)
+    return balanced, scaling, inverse
+
+
+def _complex_vectors(eigenvalues: np.ndarray, packed: np.ndarray) -> np.ndarray:
+    """Complex eigenvectors from LAPACK's real storage (column pair re, im for a conjugate pair)."""
+    vectors = packed.astype(complex)
+    first = eigenvalues.imag > 0
+    first[:-1] |= eigenvalues.imag[1:] < 0
+    first = np.flatnonzero(first)
+    if (first[1:] - first[:-1] > 1).all():  # separate pairs (always, for LAPACK's output): all at once
+        vectors.imag[:, first] = packed[:, first + 1]
+        vectors[:, first + 1] = np.conj(vectors[:, first])
+        return vectors
+    for k in first:  # scipy's pair-by-pair rule, for overlapping flags
+        vectors.imag[:, k] = packed[:, k + 1]
+        np.conj(vectors[:, k], vectors[:, k + 1])
+    return vectors
+
+
+def _eigen_with_vectors(matrix: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Eigenvalues, left and right eigenvectors (LAPACK geev, as scipy.linalg.eig returns them)."""
+    n = matrix.shape[0]
+    workspace = _EIG_WORKSPACE.get(n)
+    if workspace is None:
+        size, info = _lapack.dgeev_lwork(n, compute_vl=1, compute_vr=1)
+        workspace = _EIG_WORKSPACE.setdefault(n, int(size.real) if info == 0 else max(4 * n, 1))
+    real, imaginary, left, right, info = _lapack.dgeev(matrix, compute_vl=1, compute_vr=1, lwork=workspace)
+    if info != 0:
+        raise AnalysisError(
+            f"the eigenvalue computation of the {n}×{n} state matrix did not converge (LAPACK geev info {info}); "
+            "check the plant and the gain for extreme values"
+        )
+    eigenvalues = real + 1j * imaginary
+    if (imaginary != 0.0).any():
+        left = _complex_vectors(eigenvalues, left)
+        right = _complex_vectors(eigenvalues, right)
+    return eigenvalues, left, right
+
+
+@dataclass(frozen=True, eq=False)
+class _Eigensystem:
+    """Eigenvalues of a real matrix with unit left and right eigenvectors, from one balanced solve.
+
+    ``eigenvalues``, the columns of ``left``/``right`` and ``error_estimates`` are in
+    the solver's order (not canonical); ``condition_numbers`` are Wilkinson's 1/|yᴴx|.
+    """
+
+    matrix: np.ndarray  # (n, n), real
+    eigenvalues: np.ndarray  # (n,), complex
+    left: np.ndarray  # (n, n), unit columns y
+    right: np.ndarray  # (n, n), unit columns x
+    condition_numbers: np.ndarray  # (n,)
+    error_estimates: np.ndarray  # (n,)
+
+
+def _checked_state_matrix(matrix) -> np.ndarray:
+    try:
+        M = np.array(matrix, dtype=float)
+    except (TypeError, ValueError):
+        raise AnalysisError(f"the state matrix must be a real square matrix of numbers, got {matrix!r}") from None
+    if M.ndim != 2 or M.shape[0] != M.shape[1] or M.shape[0] == 0:
+        raise AnalysisError(f"the state matrix must be square (n×n), but its shape is {M.shape}")
+    if not np.isfinite(M).all():
+        raise AnalysisError("the state matrix has a non-finite entry (inf or nan); check the plant and the gain")
+    return M
+
+
+def _eigensystem(matrix) -> _Eigensystem:
+    """Eigenvalues, unit eigenvectors, condition numbers and rounding-error estimates of a matrix.
+
+    One balanced eigendecomposition serves both the pole report and the pole
+    sensitivities of the same closed loop.
+    """
+    M = _checked_state_matrix(matrix)
+    n = M.shape[0]
+    # LAPACK's eigensolver balances the matrix (permutation and power-of-two scaling,
+    # D⁻¹MD) before the QR iteration, so its rounding error is n·eps·‖D⁻¹MD‖ in
+    # balanced coordinates; the same balancing here makes the error estimate honest
+    # without being needlessly pessimistic for badly scaled matrices.
+    balanced, scaling, inverse = _balance(M)
+    eigenvalues, left_b, right_b = _eigen_with_vectors(balanced)
+    largest_singular_value = float(np.linalg.svd(balanced, compute_uv=False)[0])  # ‖D⁻¹MD‖₂
+    estimates = _wilkinson_condition(left_b, right_b) * n * _EPS * largest_singular_value
+    # back to the original coordinates: x = T·x_b and y = T⁻ᵀ·y_b for the similarity T of _balance
+    right = _unit_columns((scaling[:, None] * right_b)[inverse])
+    left = _unit_columns(((1.0 / scaling)[:, None] * left_b)[inverse])
+    return _Eigensystem(M, eigenvalues.astype(complex, copy=False), left, right,
+                        _wilkinson_condition(left, right), estimates)
+
+
 @dataclass(frozen=True, eq=False)
 class ClosedLoopReport:
     """Poles of a closed-loop (or open-loop) matrix and what they mean.
@@ -376,30 +506,15 @@ def analyze_state_matrix(matrix, sample_time: float | None = None) -> ClosedLoop
     >>> report.poles.tolist(), report.stable, round(report.stability_margin, 12)
     ([(-2+0j), (-1+0j)], True, 1.0)
     """
-    try:
-        M = np.array(matrix, dtype=float)
-    except (TypeError, ValueError):
-        raise AnalysisError(f"the state matrix must be a real square matrix of numbers, got {matrix!r}") from None
-    if M.ndim != 2 or M.shape[0] != M.shape[1] or M.shape[0] == 0:
-        raise AnalysisError(f"the state matrix must be square (n×n), but its shape is {M.shape}")
-    if not np.all(np.isfinite(M)):
-        raise AnalysisError("the state matrix has a non-finite entry (inf or nan); check the plant and the gain")
     T = _check_sample_time(sample_time)
-    n = M.shape[0]
-    # LAPACK's eigensolver balances the matrix (permutation and power-of-two scaling,
-    # D⁻¹MD) before the QR iteration, so its rounding error is n·eps·‖D⁻¹MD‖ in
-    # balanced coordinates; the same balancing here makes the error estimate honest
-    # without being needlessly pessimistic for badly scaled matrices.
-    balanced, similarity = scipy.linalg.matrix_balance(M)
-    eigenvalues, left_b, right_b = scipy.linalg.eig(balanced, left=True, right=True)
-    largest_singular_value = float(np.linalg.svd(balanced, compute_uv=False)[0])  # ‖D⁻¹MD‖₂
-    estimates = _wilkinson_condition(left_b, right_b) * n * _EPS * largest_singular_value
-    right = _unit_columns(similarity @ right_b)
-    left = _unit_columns(np.linalg.inv(similarity).T @ left_b)
-    condition = _wilkinson_condition(left, right)
-    poles, order = _sorted_with_order(eigenvalues.astype(complex))
-    descriptions = describe_poles(poles, T)
-    if T is None:
+    return _report_from_eigensystem(_eigensystem(matrix), T)
+
+
+def _report_from_eigensystem(system: _Eigensystem, sample_time: float | None) -> ClosedLoopReport:
+    """The report of :func:`analyze_state_matrix` from an eigendecomposition (sample time checked)."""
+    poles, order = _sorted_with_order(system.eigenvalues)
+    descriptions = tuple(_describe_one(complex(p), sample_time) for p in poles)
+    if sample_time is None:
         margin = float(-np.max(poles.real))
     else:
         margin = float(1.0 - np.max(np.abs(poles)))
@@ -411,10 +526,10 @@ def analyze_state_matrix(matrix, sample_time: float | None = None) -> ClosedLoop
         stability_margin=margin,
         slowest_time_constant=float(max(taus)),
         fastest_time_constant=float(min(taus)),
-        eigenvector_condition=_eigenvector_condition(right),
-        pole_condition_numbers=read_only(condition[order]),
-        pole_error_estimates=read_only(estimates[order]),
-        sample_time=T,
+        eigenvector_condition=_eigenvector_condition(system.right),
+        pole_condition_numbers=read_only(system.condition_numbers[order]),
+        pole_error_estimates=read_only(system.error_estimates[order]),
+        sample_time=sample_time,
     )
 
 

@@ -12,15 +12,24 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ._closed_loop import ClosedLoopReport, analyze_closed_loop, analyze_open_loop, closed_loop_matrix, match_poles
+from ._closed_loop import (
+    ClosedLoopReport,
+    _check_sample_time,
+    _eigensystem,
+    _report_from_eigensystem,
+    analyze_open_loop,
+    closed_loop_matrix,
+    match_poles,
+    sort_poles,
+)
 from ._errors import GainboardError, GainError
 from ._margins import loop_margins
 from ._plant import Plant
 from ._responses import ResponseSet, simulate_responses
-from ._single_entry import _all_entry_intervals, _entry_views, pole_sensitivity
+from ._single_entry import _all_entry_intervals, _checked_entry_views, _sensitivity_from_eigensystem
 from ._spec_checks import check_specs, pole_region
 from ._specs import DesignSpecs
-from ._structure import StructureReport, analyze_structure
+from ._structure import StructureReport, _fixed_flags, analyze_structure, controllability_staircase
 
 __all__ = ["EvaluationOptions", "DesignEvaluation", "evaluate_design"]
 
@@ -147,9 +156,13 @@ def _closed_loop_movable(plant: Plant, K: np.ndarray, structure: StructureReport
     poles = np.asarray(closed_loop.poles, dtype=complex)
     if structure.controllable:
         return (True,) * len(poles)
-    loop = analyze_structure(Plant(A=closed_loop_matrix(plant, K), B=plant.B))
-    ordered, matched, _ = match_poles(poles, loop.open_loop_poles)
-    movable_at = {complex(p): bool(m) for p, m in zip(loop.open_loop_poles, loop.pole_movable)}
+    # the controllability half of analyze_structure(Plant(A=A − BK, B=B)): its open-loop poles and
+    # pole_movable flags, without the observability, margins and conditioning that are not needed here
+    loop_matrix = closed_loop_matrix(plant, K)
+    loop_poles = sort_poles(np.linalg.eigvals(loop_matrix))
+    fixed, _ = _fixed_flags(controllability_staircase(loop_matrix, plant.B), loop_poles)
+    ordered, matched, _ = match_poles(poles, loop_poles)
+    movable_at = {complex(p): not bool(f) for p, f in zip(loop_poles, fixed)}
     by_pole = {complex(p): movable_at[complex(q)] for p, q in zip(ordered, matched)}
     return tuple(by_pole[complex(p)] for p in poles)
 
@@ -196,14 +209,17 @@ def evaluate_design(plant: Plant, gain, options: EvaluationOptions | None = None
     messages: list[str] = []
 
     structure, open_loop = _plant_analysis(plant)
-    closed_loop = analyze_closed_loop(plant, K)
+    # one eigendecomposition of A − BK for the pole report and the sensitivities: the same
+    # numbers as analyze_closed_loop and pole_sensitivity give, for one solve instead of two
+    eigensystem = _eigensystem(plant.A - plant.B @ K)  # K is checked: closed_loop_matrix without the check
+    closed_loop = _report_from_eigensystem(eigensystem, _check_sample_time(plant.sample_time))
 
     selected = None if options.selected_entry is None else _check_entry(plant, options.selected_entry)
     selected_intervals = selected_locus = sensitivity = None
     if selected is not None:
         row, col = selected
-        selected_intervals, selected_locus = _entry_views(plant, K, row, col, options.entry_range)
-        sensitivity = pole_sensitivity(plant, K, row, col)
+        selected_intervals, selected_locus = _checked_entry_views(plant, K, row, col, options.entry_range)
+        sensitivity = _sensitivity_from_eigensystem(plant, eigensystem, row, col)
     # the selected entry's intervals are shared, so the sliders and the locus never disagree
     known = {} if selected is None else {selected: selected_intervals}
     intervals = _all_entry_intervals(plant, K, known) if options.include_all_entry_intervals else {}

@@ -34,17 +34,18 @@ from collections import OrderedDict
 from dataclasses import dataclass, replace
 
 import numpy as np
-import scipy.linalg
 
 from ._arrays import read_only
+from ._closed_loop import _Eigensystem, _eigensystem
 from ._errors import GainError
 from ._plant import Plant
 from ._single_entry_family import (
     BoundaryPoint,
     RankOneFamily,
     boundary_distance,
-    boundary_is_everywhere,
+    boundary_is_everywhere_of,
     boundary_points,
+    boundary_points_of,
     family_from_reduction,
     gain_tolerance,
     margin_tolerance,
@@ -124,8 +125,10 @@ def _format_pole(pole: complex) -> str:
     return f"{pole.real:.6g}{pole.imag:+.6g}j"
 
 
-def _entry_family(plant: Plant, gain: np.ndarray, row: int, col: int, reduction=None) -> RankOneFamily:
-    closed_loop = plant.A - plant.B @ gain
+def _entry_family(plant: Plant, gain: np.ndarray, row: int, col: int, reduction=None,
+                  closed_loop: np.ndarray | None = None) -> RankOneFamily:
+    if closed_loop is None:
+        closed_loop = plant.A - plant.B @ gain
     output = np.zeros(plant.state_count)
     output[col] = 1.0
     if reduction is None:
@@ -314,23 +317,46 @@ class StableIntervals:
 
 def _poles_and_counts(family: RankOneFamily, values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Poles (len(values), n) and the number on or past the boundary at each value."""
-    values = np.atleast_1d(np.asarray(values, dtype=float))
-    o = family.order
-    counts = np.zeros(values.size, dtype=int)
-    if o:
-        matrices = family.moving_closed_loop(values)
+    return _poles_and_counts_each([family], [values])[0]
+
+
+def _poles_and_counts_each(families, value_lists) -> list[tuple[np.ndarray, np.ndarray]]:
+    """:func:`_poles_and_counts` of each family at its values, one eigenvalue call per matrix size.
+
+    numpy solves each matrix of a stack on its own, so a family's numbers do not
+    depend on the company it is computed in.
+    """
+    value_lists = [np.atleast_1d(np.asarray(values, dtype=float)) for values in value_lists]
+    counts_of = [np.zeros(values.size, dtype=int) for values in value_lists]
+    moving_of: list = [None] * len(families)
+    by_order: dict[int, list[int]] = {}
+    for position, family in enumerate(families):
+        if family.order:
+            by_order.setdefault(family.order, []).append(position)
+    for o, members in by_order.items():
+        matrices = np.concatenate([families[p].moving_closed_loop(value_lists[p]) for p in members])
         moving = np.linalg.eigvals(matrices)
         # margin_tolerance for each matrix at once: 100·o·eps·max(‖M‖_F, eps)
         tolerances = 100.0 * max(o, 1) * _EPS * np.maximum(np.linalg.norm(matrices, axis=(1, 2)), _EPS)
-        counts += np.count_nonzero(boundary_distance(moving, family.sampled) >= -tolerances[:, None], axis=1)
-    else:
-        moving = np.zeros((values.size, 0), dtype=complex)
-    fixed = np.broadcast_to(family.fixed_poles, (values.size, family.fixed_poles.size))
-    poles = np.concatenate([moving.astype(complex), fixed], axis=1)
-    if family.fixed_poles.size:
-        fixed_tolerance = margin_tolerance(family.full_norm, family.state_count)
-        counts += int(np.count_nonzero(boundary_distance(family.fixed_poles, family.sampled) >= -fixed_tolerance))
-    return poles, counts
+        start = 0
+        for p in members:
+            stop = start + value_lists[p].size
+            outside = boundary_distance(moving[start:stop], families[p].sampled) >= -tolerances[start:stop, None]
+            counts_of[p] += np.count_nonzero(outside, axis=1)
+            moving_of[p] = moving[start:stop]
+            start = stop
+    results = []
+    for family, values, counts, moving in zip(families, value_lists, counts_of, moving_of):
+        order = 0 if moving is None else moving.shape[1]
+        poles = np.empty((values.size, order + family.fixed_poles.size), dtype=complex)
+        if order:
+            poles[:, :order] = moving
+        poles[:, order:] = family.fixed_poles  # the same row of fixed poles at every value
+        if family.fixed_poles.size:
+            fixed_tolerance = margin_tolerance(family.full_norm, family.state_count)
+            counts += int(np.count_nonzero(boundary_distance(family.fixed_poles, family.sampled) >= -fixed_tolerance))
+        results.append((poles, counts))
+    return results
 
 
 def _merge_gains(family: RankOneFamily, values) -> list[float]:
@@ -386,17 +412,11 @@ def _expected_change(family: RankOneFamily, points: list[BoundaryPoint], gain: f
     return change
 
 
-def _classify_pieces(family: RankOneFamily, exact_points: list[BoundaryPoint]):
-    """Unstable count of every piece between crossing gains, with a safety net.
+def _quick_probe(family: RankOneFamily, exact_points: list[BoundaryPoint]) -> tuple[list[float], np.ndarray, int]:
+    """The merged crossing gains, the values to classify them at, and how many pieces there are.
 
-    Returns (gains, counts per piece, current value stable?, crossings located by
-    bisection). The count of each piece is read at one interior point. Two cheap
-    checks follow: across every well-conditioned crossing the count must change as
-    the crossing directions predict, and the unbounded end pieces must keep their
-    count far out. If either fails, a crossing was missed (a degenerate or badly
-    conditioned model): every piece is then probed at three points and each change
-    of count inside a piece is located by bisection and reported as such, never
-    silently skipped.
+    The values are the current value, one representative inside each piece, and two
+    (four without crossings) far out on the unbounded ends.
     """
     v0 = family.current_value
     gains = _merge_gains(family, [p.gain for p in exact_points])
@@ -407,9 +427,29 @@ def _classify_pieces(family: RankOneFamily, exact_points: list[BoundaryPoint]):
     else:
         representatives = [v0]
         far = [v0 - 10 * reach, v0 - reach, v0 + reach, v0 + 10 * reach]
-    _, quick = _poles_and_counts(family, np.array([v0] + representatives + far))
-    counts = [int(c) for c in quick[1 : 1 + len(representatives)]]
-    far_counts = quick[1 + len(representatives) :]
+    return gains, np.array([v0] + representatives + far), len(representatives)
+
+
+def _classify_pieces(family: RankOneFamily, exact_points: list[BoundaryPoint], probe=None, quick=None):
+    """Unstable count of every piece between crossing gains, with a safety net.
+
+    Returns (gains, counts per piece, current value stable?, crossings located by
+    bisection). The count of each piece is read at one interior point. Two cheap
+    checks follow: across every well-conditioned crossing the count must change as
+    the crossing directions predict, and the unbounded end pieces must keep their
+    count far out. If either fails, a crossing was missed (a degenerate or badly
+    conditioned model): every piece is then probed at three points and each change
+    of count inside a piece is located by bisection and reported as such, never
+    silently skipped. ``probe`` (from :func:`_quick_probe`) and ``quick`` (the
+    counts at its values) may be given when already computed.
+    """
+    v0 = family.current_value
+    if probe is None:
+        probe = _quick_probe(family, exact_points)
+        _, quick = _poles_and_counts(family, probe[1])
+    gains, _, piece_count = probe
+    counts = [int(c) for c in quick[1 : 1 + piece_count]]
+    far_counts = quick[1 + piece_count :]
     consistent = (
         all(c == counts[0] for c in far_counts) if not gains
         else far_counts[0] == counts[0] and far_counts[1] == counts[-1]
@@ -489,12 +529,53 @@ def _fixed_pole_reason(plant: Plant, family: RankOneFamily, row: int, col: int, 
     )
 
 
-def _analyze_family(plant: Plant, family: RankOneFamily, row: int, col: int) -> StableIntervals:
+def _family_job(plant: Plant, family: RankOneFamily, row: int, col: int):
+    """(family, entry, label, fixed_reason) for :func:`_intervals_from_families`."""
     label = _entry_label(plant, row, col)
-    return _intervals_from_family(family, (row, col), label, lambda: _fixed_pole_reason(plant, family, row, col, label))
+    return family, (row, col), label, lambda: _fixed_pole_reason(plant, family, row, col, label)
+
+
+def _analyze_family(plant: Plant, family: RankOneFamily, row: int, col: int) -> StableIntervals:
+    return _intervals_from_family(*_family_job(plant, family, row, col))
 
 
 def _intervals_from_family(family: RankOneFamily, entry, label: str, fixed_reason) -> StableIntervals:
+    return _intervals_from_families([(family, entry, label, fixed_reason)])[0]
+
+
+def _intervals_from_families(jobs) -> list[StableIntervals]:
+    """Stable intervals of several families, each job (family, entry, label, fixed_reason).
+
+    The work is done stage by stage for all families at once (mirror-pair test,
+    crossing search, piece classification), so families of one order share each
+    batched LAPACK call; every family still gets exactly the numbers it gets alone.
+    """
+    families = [job[0] for job in jobs]
+    everywhere = boundary_is_everywhere_of(families)  # False for a family that moves no pole
+    searched = [k for k, family in enumerate(families) if family.has_effect and not everywhere[k]]
+    if len(searched) == 1:
+        # a single family goes through boundary_points itself (the same computation; tests replace
+        # it there to simulate a crossing the structured method misses)
+        found = [boundary_points(families[searched[0]])]
+    else:
+        found = boundary_points_of([families[k] for k in searched])
+    points_of = dict(zip(searched, found))
+    probes = {k: _quick_probe(families[k], points_of[k]) for k in searched}
+    values = [probes[k][1] if k in probes else np.array([families[k].current_value]) for k in range(len(jobs))]
+    counted = _poles_and_counts_each(families, values)
+    return [
+        _intervals_result(*job, everywhere[k], points_of.get(k), probes.get(k), counted[k][1])
+        for k, job in enumerate(jobs)
+    ]
+
+
+def _intervals_result(family: RankOneFamily, entry, label: str, fixed_reason, everywhere: bool, points, probe,
+                      quick) -> StableIntervals:
+    """One family's intervals from its stages: mirror-pair verdict, crossings, and the counts at the probe.
+
+    Without crossings to classify (no effect, or mirror pairs) ``quick`` holds the
+    count at the current value only.
+    """
     v0 = family.current_value
     sampled = family.sampled
     fixed = tuple(complex(p) for p in family.fixed_poles)
@@ -502,7 +583,7 @@ def _intervals_from_family(family: RankOneFamily, entry, label: str, fixed_reaso
     where = "on or outside the unit circle" if sampled else "on or right of the imaginary axis"
 
     if not family.has_effect:
-        _, current_counts = _poles_and_counts(family, np.array([v0]))
+        current_counts = quick
         current_is_stable = bool(current_counts[0] == 0)
         count = int(current_counts[0])
         intervals = ((-math.inf, math.inf),) if count == 0 else ()
@@ -515,9 +596,8 @@ def _intervals_from_family(family: RankOneFamily, entry, label: str, fixed_reaso
         return StableIntervals(entry, intervals, (), v0, current_is_stable, reason,
                                ((-math.inf, math.inf, count),), fixed, False, sampled, tolerance, ())
 
-    if boundary_is_everywhere(family):
-        _, current_counts = _poles_and_counts(family, np.array([v0]))
-        current_is_stable = bool(current_counts[0] == 0)
+    if everywhere:
+        current_is_stable = bool(quick[0] == 0)
         pairs = "reciprocal pairs z and 1/z̄ about the unit circle" if sampled else \
             "mirror-image pairs s and −s̄ about the imaginary axis"
         reason = (
@@ -527,8 +607,8 @@ def _intervals_from_family(family: RankOneFamily, entry, label: str, fixed_reaso
         return StableIntervals(entry, (), (), v0, current_is_stable, reason, (), fixed, True, sampled,
                                tolerance, ())
 
-    points = list(boundary_points(family))
-    gains, counts, current_is_stable, located = _classify_pieces(family, points)
+    points = list(points)
+    gains, counts, current_is_stable, located = _classify_pieces(family, points, probe, quick)
     points = sorted(points + located, key=lambda p: (p.gain, p.parameter))
     edges = [-math.inf] + gains + [math.inf]
     pieces = tuple((edges[k], edges[k + 1], int(counts[k])) for k in range(len(counts)))
@@ -636,6 +716,10 @@ def entry_stable_intervals(plant: Plant, K, row: int, col: int) -> StableInterva
 def all_entry_stable_intervals(plant: Plant, K) -> dict[tuple[int, int], StableIntervals]:
     """Stable intervals of every gain entry, sharing one Krylov reduction per input.
 
+    The entries are analysed together, stage by stage, so that entries whose
+    families have the same order share batched LAPACK calls; each entry's result is
+    exactly what :func:`entry_stable_intervals` gives for it.
+
     Parameters
     ----------
     plant : Plant
@@ -645,6 +729,15 @@ def all_entry_stable_intervals(plant: Plant, K) -> dict[tuple[int, int], StableI
     -------
     dict
         ``{(row, col): StableIntervals}`` for every entry, zero-based.
+
+    Examples
+    --------
+    The cubic of :func:`entry_stable_intervals` (Routh–Hurwitz: 0 < k1 < 6 with k2 = k3 = 0):
+
+    >>> plant = Plant(A=[[0.0, 1.0, 0.0], [0.0, 0.0, 1.0], [0.0, -2.0, -3.0]], B=[[0.0], [0.0], [1.0]])
+    >>> every = all_entry_stable_intervals(plant, [[1.0, 0.0, 0.0]])
+    >>> sorted(every), [(round(low, 9), round(high, 9)) for low, high in every[(0, 0)].intervals]
+    ([(0, 0), (0, 1), (0, 2)], [(0.0, 6.0)])
     """
     if not isinstance(plant, Plant):
         raise GainError(f"the plant must be a gainboard Plant, but {type(plant).__name__} was given")
@@ -654,18 +747,18 @@ def all_entry_stable_intervals(plant: Plant, K) -> dict[tuple[int, int], StableI
 def _all_entry_intervals(plant: Plant, gain: np.ndarray, known: dict) -> dict[tuple[int, int], StableIntervals]:
     """:func:`all_entry_stable_intervals` taking the entries in ``known`` as given (checked gain)."""
     closed_loop = plant.A - plant.B @ gain
-    results = {}
+    jobs = []
     for row in range(plant.input_count):
         reduction = None
         for col in range(plant.state_count):
             if (row, col) in known:
-                results[(row, col)] = known[(row, col)]
                 continue
             if reduction is None:
                 reduction = reduce_input(closed_loop, plant.B[:, row])
-            family = _entry_family(plant, gain, row, col, reduction)
-            results[(row, col)] = _analyze_family(plant, family, row, col)
-    return results
+            jobs.append(_family_job(plant, _entry_family(plant, gain, row, col, reduction, closed_loop), row, col))
+    analysed = dict(zip([job[1] for job in jobs], _intervals_from_families(jobs)))
+    return {(row, col): known[(row, col)] if (row, col) in known else analysed[(row, col)]
+            for row in range(plant.input_count) for col in range(plant.state_count)}
 
 
 # ---------------------------------------------------------------------------
@@ -978,25 +1071,28 @@ def pole_sensitivity(plant: Plant, K, row: int, col: int) -> PoleSensitivity:
     [(-2+0j)]
     """
     gain, row, col = _checked_entry(plant, K, row, col)
-    closed_loop = plant.A - plant.B @ gain
+    return _sensitivity_from_eigensystem(plant, _eigensystem(plant.A - plant.B @ gain), row, col)
+
+
+def _sensitivity_from_eigensystem(plant: Plant, system: _Eigensystem, row: int, col: int) -> PoleSensitivity:
+    """:func:`pole_sensitivity` from the closed loop's eigendecomposition (checked entry).
+
+    ``evaluate_design`` passes the decomposition its pole report was built from, so
+    the closed loop is decomposed once per update.
+    """
     n = plant.state_count
-    eigenvalues, left, right = scipy.linalg.eig(closed_loop, left=True, right=True)
+    eigenvalues, left, right = system.eigenvalues, system.left, system.right
     b = plant.B[:, row]
     projections = np.einsum("ik,ik->k", left.conj(), right)
     with np.errstate(divide="ignore", invalid="ignore"):
-        conditions = np.linalg.norm(left, axis=0) * np.linalg.norm(right, axis=0) / np.abs(projections)
         derivatives = -(left.conj().T @ b) * right[col, :] / projections
-    conditions = np.where(np.isfinite(conditions), conditions, np.inf)
-    norm = float(np.linalg.norm(closed_loop))
-    defective = ~np.isfinite(conditions)
-    for k in range(n):
-        for other in range(n):
-            if other == k:
-                continue
-            # Two computed poles closer than their combined rounding radius cannot be told apart.
-            radius = 10.0 * n * _EPS * max(norm, _EPS) * (conditions[k] + conditions[other])
-            if abs(eigenvalues[k] - eigenvalues[other]) <= radius:
-                defective[k] = True
+    conditions = system.condition_numbers  # ‖x‖‖y‖/|yᴴx| with unit x, y (inf where yᴴx = 0)
+    norm = float(np.linalg.norm(system.matrix))
+    # Two computed poles closer than their combined rounding radius cannot be told apart.
+    radius = 10.0 * n * _EPS * max(norm, _EPS) * (conditions[:, None] + conditions[None, :])
+    close = np.abs(eigenvalues[:, None] - eigenvalues[None, :]) <= radius
+    # every pole is within its own radius (the diagonal), so a second one close by makes two
+    defective = ~np.isfinite(conditions) | (np.count_nonzero(close, axis=1) > 1)
     derivatives = np.where(defective, complex(math.nan, math.nan), derivatives)
     note = ""
     if defective.any():
@@ -1121,7 +1217,12 @@ def _entry_record(plant: Plant, gain: np.ndarray, row: int, col: int, use_cache:
 
 
 def _reference_locus(record: _EntryRecord, low: float, high: float, use_cache: bool):
-    """Locus samples of the family over [low, high] without the current value (cached per range)."""
+    """Locus samples of the family over [low, high] without the current value (cached per range).
+
+    Returns (values, poles, evaluation_count, span, extremes), the arrays read-only;
+    ``extremes`` = (min Re, max Re, min Im, max Im) of the poles when they are all finite
+    and not all equal (else None), so the span with one more sample is cheap.
+    """
     key = (low, high)
     if use_cache:
         with _ENTRY_RECORDS_LOCK:
@@ -1131,7 +1232,13 @@ def _reference_locus(record: _EntryRecord, low: float, high: float, use_cache: b
                 return found
     inside = _crossings_inside(record.analysis, low, high)
     sampled = adaptive_locus(record.family.poles, low, high, [c.gain for c in inside])
-    found = (read_only(sampled.values), read_only(sampled.poles), sampled.evaluation_count, sampled.span)
+    poles = sampled.poles
+    extremes = None
+    if poles.size and np.all(np.isfinite(poles)):
+        extremes = (poles.real.min(), poles.real.max(), poles.imag.min(), poles.imag.max())
+        if extremes[1] - extremes[0] == 0.0 and extremes[3] - extremes[2] == 0.0:
+            extremes = None  # plot_span's special case of a single point
+    found = (read_only(sampled.values), read_only(poles), sampled.evaluation_count, sampled.span, extremes)
     if use_cache:
         with _ENTRY_RECORDS_LOCK:
             found = record.loci.setdefault(key, found)
@@ -1141,26 +1248,42 @@ def _reference_locus(record: _EntryRecord, low: float, high: float, use_cache: b
     return found
 
 
-def _intervals_at(record: _EntryRecord, value: float) -> StableIntervals:
-    """The entry's intervals with the current value and its verdict filled in."""
-    _, counts = _poles_and_counts(record.family, np.array([value]))
-    return replace(record.analysis, current_value=value, current_is_stable=bool(counts[0] == 0),
-                   gain_tolerance=gain_tolerance(record.family, value))
+def _intervals_at(record: _EntryRecord, value: float) -> tuple[StableIntervals, np.ndarray]:
+    """The entry's intervals with the current value and its verdict filled in, and the poles there.
+
+    The poles, shape (n,), are those of ``record.family.poles`` at ``value`` (the same
+    eigenvalue call), ready to be added to the locus.
+    """
+    poles, counts = _poles_and_counts(record.family, np.array([value]))
+    analysis = replace(record.analysis, current_value=value, current_is_stable=bool(counts[0] == 0),
+                       gain_tolerance=gain_tolerance(record.family, value))
+    return analysis, poles[0]
 
 
-def _locus_at(plant: Plant, record: _EntryRecord, analysis: StableIntervals, row: int, col: int,
-              low: float, high: float, use_cache: bool) -> EntryLocus:
-    """The range's locus with the current value's sample added (matched to its left neighbour)."""
-    values, poles, evaluation_count, span = _reference_locus(record, low, high, use_cache)
+def _span_with(extremes, poles: np.ndarray, here: np.ndarray) -> float:
+    """:func:`plot_span` of ``poles`` (the locus with the sample ``here`` added), from the locus' extremes."""
+    if extremes is None or not np.all(np.isfinite(here)):
+        return plot_span(poles)
+    real_low, real_high, imag_low, imag_high = extremes
+    here_real, here_imag = here.real, here.imag
+    # max − min, as numpy.ptp takes it, over the old extremes and the new sample
+    real_range = max(real_high, here_real.max()) - min(real_low, here_real.min())
+    imag_range = max(imag_high, here_imag.max()) - min(imag_low, here_imag.min())
+    return float(np.hypot(real_range, imag_range))  # not 0: the old poles alone already spread
+
+
+def _locus_at(plant: Plant, record: _EntryRecord, analysis: StableIntervals, current_poles: np.ndarray,
+              row: int, col: int, low: float, high: float, use_cache: bool) -> EntryLocus:
+    """The range's locus with the current value's sample (``current_poles``) added, matched to its left neighbour."""
+    values, poles, evaluation_count, span, extremes = _reference_locus(record, low, high, use_cache)
     value = analysis.current_value
     place = int(np.searchsorted(values, value))
     if low < value < high and values[place] != value:
-        here = record.family.poles(np.array([value]))[0]
-        here = here[match_to(poles[place - 1], here)]
-        values = np.insert(values, place, value)
-        poles = np.insert(poles, place, here, axis=0)
+        here = current_poles[match_to(poles[place - 1], current_poles)]
+        values = np.concatenate((values[:place], [value], values[place:]))
+        poles = np.concatenate((poles[:place], here[None, :], poles[place:]))
         evaluation_count += 1
-        span = plot_span(poles)
+        span = _span_with(extremes, poles, here)
     return EntryLocus(
         entry=(row, col),
         gains=read_only(values),
@@ -1218,10 +1341,16 @@ def _entry_views(plant: Plant, K, row: int, col: int, entry_range=None,
     :func:`entry_locus` up to rounding (those start from the current closed loop).
     """
     gain, row, col = _checked_entry(plant, K, row, col)
+    return _checked_entry_views(plant, gain, row, col, entry_range, use_cache)
+
+
+def _checked_entry_views(plant: Plant, gain: np.ndarray, row: int, col: int, entry_range=None,
+                         use_cache: bool = True) -> tuple[StableIntervals, EntryLocus]:
+    """:func:`_entry_views` for a gain already checked by ``plant.check_gain`` and a valid entry."""
     if entry_range is not None:
         low, high = _checked_range(*entry_range, f"sweep of {_entry_label(plant, row, col)}")
     record = _entry_record(plant, gain, row, col, use_cache)
-    analysis = _intervals_at(record, float(gain[row, col]))
+    analysis, current_poles = _intervals_at(record, float(gain[row, col]))
     if entry_range is None:
         low, high = _coarse_range(record.family, analysis)
-    return analysis, _locus_at(plant, record, analysis, row, col, low, high, use_cache)
+    return analysis, _locus_at(plant, record, analysis, current_poles, row, col, low, high, use_cache)

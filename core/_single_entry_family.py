@@ -33,7 +33,10 @@ from functools import cached_property
 import numpy as np
 import scipy.linalg
 from scipy.linalg.lapack import dgehrd as _gehrd
+from scipy.linalg.lapack import dggev as _ggev
 from scipy.linalg.lapack import dorghr as _orghr
+
+from ._errors import AnalysisError
 
 __all__: list[str] = []  # private helpers, nothing re-exported
 
@@ -68,6 +71,12 @@ class KrylovReduction:
     @property
     def unreached_block(self) -> np.ndarray:
         return self.reduced[self.size :, self.size :]
+
+    @cached_property
+    def unreached_poles(self) -> np.ndarray:
+        """Eigenvalues of the unreached block (computed once for all the families sharing the reduction)."""
+        n = self.reduced.shape[0]
+        return np.linalg.eigvals(self.unreached_block) if self.size < n else np.zeros(0)
 
 
 def _hessenberg_with_basis(matrix: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -205,7 +214,7 @@ def family_from_reduction(
     """Build the minimal family from the reachable part of (A0, b) and the output row c."""
     n = closed_loop.shape[0]
     full_norm = float(np.linalg.norm(closed_loop))
-    unreached = np.linalg.eigvals(reduction.unreached_block) if reduction.size < n else np.zeros(0)
+    unreached = reduction.unreached_poles
     r = reduction.size
     empty = np.zeros((0, 0))
     if r == 0:
@@ -310,16 +319,62 @@ class BoundaryPoint:
     exact: bool = True
 
 
-def _bordered_matrices(family: RankOneFamily, points) -> np.ndarray:
-    """Bordered matrices R(s) = [[sI − M, b], [cᵀ, 0]] for each s; shape (k, o + 1, o + 1)."""
-    o = family.order
-    points = np.atleast_1d(np.asarray(points, dtype=complex))
+# ---------------------------------------------------------------------------
+# Families stacked by order: the candidates of many families in one batched solve
+# ---------------------------------------------------------------------------
+@dataclass(frozen=True, eq=False)
+class _Stack:
+    """Families of one order and time domain, their data stacked along a first axis.
+
+    In a generic plant every entry of K gives a family of the same order, so the
+    bordered systems of all their candidates go to LAPACK in one batched call. Each
+    system is still solved on its own (numpy loops over the stack), so every number
+    is the one a family analysed alone gets.
+    """
+
+    members: tuple[int, ...]  # positions of the families in the caller's list
+    order: int
+    sampled: bool
+    moving_matrix: np.ndarray  # (F, o, o)
+    moving_input: np.ndarray  # (F, o)
+    moving_output: np.ndarray  # (F, o)
+    pole_scale: np.ndarray  # (F,)
+    direction_weight: np.ndarray  # (F,)
+    current_value: np.ndarray  # (F,)
+
+
+def _stacks(families) -> list[_Stack]:
+    """The families that move poles, grouped by (order, sampled), in their given order within a group."""
+    groups: dict[tuple[int, bool], list[int]] = {}
+    for position, family in enumerate(families):
+        if family.has_effect:
+            groups.setdefault((family.order, family.sampled), []).append(position)
+    stacks = []
+    for (order, sampled), members in groups.items():
+        chosen = [families[p] for p in members]
+        stacks.append(_Stack(
+            members=tuple(members),
+            order=order,
+            sampled=sampled,
+            moving_matrix=np.stack([f.moving_matrix for f in chosen]),
+            moving_input=np.stack([f.moving_input for f in chosen]),
+            moving_output=np.stack([f.moving_output for f in chosen]),
+            pole_scale=np.array([f.pole_scale for f in chosen]),
+            direction_weight=np.array([f.direction_weight for f in chosen]),
+            current_value=np.array([f.current_value for f in chosen]),
+        ))
+    return stacks
+
+
+def _bordered_matrices(stack: _Stack, owner: np.ndarray, points: np.ndarray) -> np.ndarray:
+    """Bordered matrices R(s) = [[sI − M, b], [cᵀ, 0]] for each s of family ``owner``; shape (k, o + 1, o + 1)."""
+    o = stack.order
     bordered = np.zeros((points.size, o + 1, o + 1), dtype=complex)
-    bordered[:, :o, :o] = -family.moving_matrix
+    bordered[:, :o, :o] = -stack.moving_matrix[owner]
     diagonal = np.arange(o)
     bordered[:, diagonal, diagonal] += points[:, None]
-    bordered[:, :o, o] = family.moving_input
-    bordered[:, o, :o] = family.moving_output
+    bordered[:, :o, o] = stack.moving_input[owner]
+    bordered[:, o, :o] = stack.moving_output[owner]
     return bordered
 
 
@@ -337,16 +392,16 @@ def _solve_each(matrices: np.ndarray, rhs: np.ndarray) -> np.ndarray:
         return out
 
 
-def _bordered_solutions(family: RankOneFamily, points: np.ndarray):
-    """Solve R(s)·[x; t] = e and R(s)ᴴ·[y; w] = e for every s at once.
+def _bordered_solutions(stack: _Stack, owner: np.ndarray, points: np.ndarray):
+    """Solve R(s)·[x; t] = e and R(s)ᴴ·[y; w] = e for every s (of family ``owner``) at once.
 
     Returns t (k,), x (k, o), y (k, o), t' = dt/ds = −yᴴx (k,), and a condition
     estimate ‖R‖·max(‖R⁻¹e‖, ‖R⁻ᴴe‖) (k,). That estimate is a lower bound on
     cond(R); it blows up next to a zero of g (where R is singular) because the
     left null vector of R has a non-zero last entry for a minimal realisation.
     """
-    o = family.order
-    bordered = _bordered_matrices(family, points)
+    o = stack.order
+    bordered = _bordered_matrices(stack, owner, points)
     k = bordered.shape[0]
     pair = np.concatenate([bordered, bordered.conj().transpose(0, 2, 1)])
     unit = np.zeros((2 * k, o + 1, 1), dtype=complex)
@@ -362,14 +417,13 @@ def _bordered_solutions(family: RankOneFamily, points: np.ndarray):
     return t, x, y, derivative, condition
 
 
-def _closed_norm_bound(family: RankOneFamily, t):
-    """Upper bound ‖M‖ + |t|·‖b‖·‖c‖ on ‖M − t·b·cᵀ‖_F (cheaper than forming it)."""
-    scale = family.pole_scale
+def _closed_norm_bound(scale, t):
+    """Upper bound ‖M‖ + |t|·‖b‖·‖c‖ on ‖M − t·b·cᵀ‖_F (cheaper than forming it); scale = pole_scale."""
     return scale + np.abs(t) * scale * scale
 
 
-def _singular_limit(family: RankOneFamily) -> float:
-    return 1.0 / (1e3 * max(family.order, 1) * _EPS)
+def _singular_limit(order: int) -> float:
+    return 1.0 / (1e3 * max(order, 1) * _EPS)
 
 
 def _points_from_parameters(parameters: np.ndarray, sampled: bool) -> np.ndarray:
@@ -382,17 +436,19 @@ def _points_from_parameters(parameters: np.ndarray, sampled: bool) -> np.ndarray
     return np.where(parameters == math.pi, -1.0 + 0j, points)
 
 
-def _refine_boundary_points(family: RankOneFamily, parameters) -> list[BoundaryPoint]:
+def _refine_boundary_points(stack: _Stack, owner: np.ndarray, parameters) -> list[tuple[int, BoundaryPoint]]:
     """Newton's method on φ(p) = Im t(s(p)) = 0 along the boundary, for all candidates at once.
 
-    s(p) = jp (continuous) or e^{jp} (sampled); φ'(p) = Re t'(s) or Re(t'(s)·s).
-    A candidate is kept when its backward error (below) reaches rounding level and
-    the bordered matrix is not singular there.
+    Candidate k belongs to family ``owner[k]`` of the stack. s(p) = jp (continuous)
+    or e^{jp} (sampled); φ'(p) = Re t'(s) or Re(t'(s)·s). A candidate is kept when
+    its backward error (below) reaches rounding level and the bordered matrix is
+    not singular there. Returns (owner, point) pairs in candidate order.
     """
-    o = family.order
-    sampled = family.sampled
+    o = stack.order
+    sampled = stack.sampled
     parameters = np.array(parameters, dtype=float)
     count = parameters.size
+    scale = stack.pole_scale[owner]
     best_backward = np.full(count, np.inf)
     best_parameter = parameters.copy()
     best_point = np.zeros(count, dtype=complex)
@@ -402,19 +458,19 @@ def _refine_boundary_points(family: RankOneFamily, parameters) -> list[BoundaryP
     best_derivative = np.zeros(count, dtype=complex)
     best_condition = np.full(count, np.inf)
     active = np.ones(count, dtype=bool)
-    reference = 1.0 if sampled else family.pole_scale
+    reference = 1.0 if sampled else scale
     for _ in range(_NEWTON_STEPS):
         index = np.flatnonzero(active)
         if index.size == 0:
             break
         s = _points_from_parameters(parameters[index], sampled)
-        t, x, y, derivative, condition = _bordered_solutions(family, s)
+        t, x, y, derivative, condition = _bordered_solutions(stack, owner[index], s)
         finite = np.isfinite(t) & np.all(np.isfinite(x), axis=1) & np.all(np.isfinite(y), axis=1)
         with np.errstate(divide="ignore", invalid="ignore"):
             # (s, x) is an exact eigenpair of M − t·bn·cnᵀ; dropping Im t leaves the residual
             # |Im t|·‖bn‖ (cnᵀx = 1): the backward error of s as a pole at the real gain Re t.
-            backward = np.abs(t.imag) * family.pole_scale / (
-                np.linalg.norm(x, axis=1) * _closed_norm_bound(family, t.real)
+            backward = np.abs(t.imag) * scale[index] / (
+                np.linalg.norm(x, axis=1) * _closed_norm_bound(scale[index], t.real)
             )
             slope = (derivative * s).real if sampled else derivative.real
             step = -t.imag / slope
@@ -432,44 +488,52 @@ def _refine_boundary_points(family: RankOneFamily, parameters) -> list[BoundaryP
         stop = (backward <= 4.0 * _EPS) | ~finite | ~np.isfinite(step)
         moving = index[~stop]
         parameters[moving] += step[~stop]
-        tiny = np.abs(step) <= 4.0 * _EPS * np.maximum(np.abs(parameters[index]), reference)
+        floor = reference if sampled else reference[index]
+        tiny = np.abs(step) <= 4.0 * _EPS * np.maximum(np.abs(parameters[index]), floor)
         active[index[stop | tiny]] = False
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        gains = family.current_value + best_t.real / family.direction_weight
+        gains = stack.current_value[owner] + best_t.real / stack.direction_weight[owner]
     keep = (
         (best_backward <= 1e3 * max(o, 1) * _EPS)
         # next to a zero of g on the boundary the bordered matrix is singular: that pole is
         # reached only at infinite gain
-        & (best_condition <= _singular_limit(family))
+        & (best_condition <= _singular_limit(o))
         & np.isfinite(gains)
     )
     if not keep.any():
         return []
+    kept = np.flatnonzero(keep)
     conditions, speeds, uncertainties = _crossing_measures(
-        family, best_point[keep], best_t[keep], best_x[keep], best_y[keep], best_derivative[keep]
+        o, sampled, scale[kept], stack.direction_weight[owner[kept]],
+        best_point[kept], best_t[kept], best_x[kept], best_y[kept], best_derivative[kept]
     )
-    found = []
-    for k, candidate in enumerate(np.flatnonzero(keep)):
-        parameter = best_parameter[candidate]
-        parameter = abs(math.remainder(parameter, 2.0 * math.pi)) if sampled else abs(parameter)
-        point = complex(_points_from_parameters(np.array([parameter]), sampled)[0])
-        found.append(BoundaryPoint(float(gains[candidate]), point, float(parameter), float(conditions[k]),
-                                   float(speeds[k]), float(uncertainties[k]), float(best_backward[candidate])))
-    return found
+    if sampled:
+        kept_parameters = np.array([abs(math.remainder(p, 2.0 * math.pi)) for p in best_parameter[kept]])
+    else:
+        kept_parameters = np.abs(best_parameter[kept])
+    points = _points_from_parameters(kept_parameters, sampled)
+    return [
+        (int(owner[candidate]),
+         BoundaryPoint(float(gains[candidate]), complex(points[k]), float(kept_parameters[k]), float(conditions[k]),
+                       float(speeds[k]), float(uncertainties[k]), float(best_backward[candidate])))
+        for k, candidate in enumerate(kept)
+    ]
 
 
-def _crossing_measures(family: RankOneFamily, points, t, x, y, derivative):
-    """Condition numbers, boundary speeds dρ/dv and gain uncertainties of boundary poles (arrays)."""
-    o = family.order
+def _crossing_measures(order: int, sampled: bool, scale, weight, points, t, x, y, derivative):
+    """Condition numbers, boundary speeds dρ/dv and gain uncertainties of boundary poles (arrays).
+
+    ``scale`` and ``weight`` are each pole's family's pole_scale and direction_weight.
+    """
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         y_dot_x = np.abs(np.einsum("ki,ki->k", y.conj(), x))
         conditions = np.linalg.norm(x, axis=1) * np.linalg.norm(y, axis=1) / y_dot_x
         conditions = np.where(np.isfinite(conditions), conditions, np.inf)
         # λ(t) is the inverse function of t(s): dλ/dt = 1/t'(s); v = v0 + t/w. Where t'(s) = 0
         # two branches meet on the boundary and the speed is undefined (NaN).
-        pole_speed = np.where(derivative != 0, family.direction_weight / derivative, np.nan)
-        speeds = (np.conj(points) * pole_speed).real if family.sampled else pole_speed.real
-        pole_errors = max(o, 1) * _EPS * _closed_norm_bound(family, t.real) * conditions
+        pole_speed = np.where(derivative != 0, weight / derivative, np.nan)
+        speeds = (np.conj(points) * pole_speed).real if sampled else pole_speed.real
+        pole_errors = max(order, 1) * _EPS * _closed_norm_bound(scale, t.real) * conditions
         uncertainties = np.where(np.isfinite(speeds) & (speeds != 0), pole_errors / np.abs(speeds), np.inf)
     return conditions, speeds, uncertainties
 
@@ -505,6 +569,36 @@ def boundary_pencil(family: RankOneFamily) -> tuple[np.ndarray, np.ndarray]:
     return F, E
 
 
+_PENCIL_WORKSPACE: dict[int, int] = {}
+
+
+def _finite_pencil_eigenvalues(F: np.ndarray, E: np.ndarray) -> np.ndarray:
+    """Finite generalized eigenvalues of (F, E), as ``scipy.linalg.eigvals(F, E)`` computes them.
+
+    The same LAPACK call (ggev, no eigenvectors, scipy's workspace size) and the same
+    α/β division, in LAPACK's order, with infinite and undetermined eigenvalues left
+    out; without scipy's per-call checks, which cost more than the work at this size.
+    """
+    size = F.shape[0]
+    workspace = _PENCIL_WORKSPACE.get(size)
+    if workspace is None:
+        query = _ggev(F, E, lwork=-1)
+        workspace = _PENCIL_WORKSPACE.setdefault(size, int(query[-2][0].real))
+    alpha_real, alpha_imag, beta, _, _, _, info = _ggev(F, E, 0, 0, workspace)
+    if info != 0:
+        raise AnalysisError(
+            f"the {size}×{size} boundary-crossing eigenvalue problem did not converge (LAPACK ggev info {info}); "
+            "the plant or the gain may hold extreme values"
+        )
+    alpha = alpha_real + 1j * alpha_imag
+    determined = beta != 0
+    eigenvalues = alpha[determined] / beta[determined]
+    return eigenvalues[np.isfinite(eigenvalues)]
+
+
+_EVERYWHERE_FRACTIONS = np.array([0.3711, 1.1307, 2.7183])
+
+
 def boundary_is_everywhere(family: RankOneFamily) -> bool:
     """True when g(s) is real at every boundary point (h ≡ 0).
 
@@ -512,30 +606,39 @@ def boundary_is_everywhere(family: RankOneFamily) -> bool:
     moving poles come in mirror pairs (s, −s̄) or (z, 1/z̄): no value of v makes
     them all stable. Tested at three boundary points away from 0 and ±1.
     """
-    fractions = np.array([0.3711, 1.1307, 2.7183])
-    if family.sampled:
-        points = np.exp(1j * fractions)
-    else:
-        points = 1j * fractions * family.pole_scale
-    bordered = _bordered_matrices(family, points)
-    unit = np.zeros((points.size, family.order + 1, 1), dtype=complex)
-    unit[:, -1, 0] = 1.0
-    with np.errstate(all="ignore"):
-        t = _solve_each(bordered, unit)[:, -1, 0]  # a singular point gives nan: inconclusive
-    conclusive = np.isfinite(t) & (t != 0.0)
-    if np.any(np.abs(t[conclusive].imag) > 1e4 * max(family.order, 1) * _EPS * np.abs(t[conclusive])):
-        return False
-    return int(np.count_nonzero(conclusive)) >= 2
+    return boundary_is_everywhere_of([family])[0]
 
 
-def boundary_points(family: RankOneFamily) -> list[BoundaryPoint]:
-    """Every value of v at which a moving pole is on the stability boundary, sorted by v."""
-    if not family.has_effect:
-        return []
+def boundary_is_everywhere_of(families) -> list[bool]:
+    """:func:`boundary_is_everywhere` for each family (False for a family that moves no pole)."""
+    results = [False] * len(families)
+    fractions = _EVERYWHERE_FRACTIONS
+    for stack in _stacks(families):
+        count = len(stack.members)
+        owner = np.repeat(np.arange(count), fractions.size)
+        if stack.sampled:
+            points = np.tile(np.exp(1j * fractions), count)
+        else:
+            points = (1j * fractions * stack.pole_scale[:, None]).ravel()
+        bordered = _bordered_matrices(stack, owner, points)
+        unit = np.zeros((points.size, stack.order + 1, 1), dtype=complex)
+        unit[:, -1, 0] = 1.0
+        with np.errstate(all="ignore"):
+            # a singular point gives nan: inconclusive
+            t = _solve_each(bordered, unit)[:, -1, 0].reshape(count, fractions.size)
+            conclusive = np.isfinite(t) & (t != 0.0)
+            complex_there = conclusive & (np.abs(t.imag) > 1e4 * max(stack.order, 1) * _EPS * np.abs(t))
+        everywhere = ~complex_there.any(axis=1) & (np.count_nonzero(conclusive, axis=1) >= 2)
+        for position, verdict in zip(stack.members, everywhere):
+            results[position] = bool(verdict)
+    return results
+
+
+def _boundary_candidates(family: RankOneFamily) -> list[float]:
+    """Boundary parameters (ω or θ) from the pencil, plus the trivial ones, to be polished."""
     F, E = boundary_pencil(family)
     with np.errstate(divide="ignore", invalid="ignore"):
-        eigenvalues = scipy.linalg.eigvals(F, E, check_finite=False)
-    eigenvalues = eigenvalues[np.isfinite(eigenvalues)]
+        eigenvalues = _finite_pencil_eigenvalues(F, E)
     scale = family.pole_scale
     if family.sampled:
         near = np.abs(np.abs(eigenvalues) - 1.0) <= _CANDIDATE_NET
@@ -552,8 +655,13 @@ def boundary_points(family: RankOneFamily) -> list[BoundaryPoint]:
     for parameter in parameters:
         if all(abs(parameter - kept) > 1e-9 * max(parameter, 1.0 if family.sampled else scale) for kept in unique[-1:] + trivial):
             unique.append(float(parameter))
-    found = _refine_boundary_points(family, unique)
-    found.sort(key=lambda p: (p.gain, p.parameter))
+    return unique
+
+
+def _merged_points(family: RankOneFamily, found: list[BoundaryPoint]) -> list[BoundaryPoint]:
+    """Polished candidates sorted by gain, copies of one crossing merged (the best kept)."""
+    scale = family.pole_scale
+    found = sorted(found, key=lambda p: (p.gain, p.parameter))
     merged: list[BoundaryPoint] = []
     for candidate in found:
         duplicate = False
@@ -569,6 +677,23 @@ def boundary_points(family: RankOneFamily) -> list[BoundaryPoint]:
             merged.append(candidate)
     merged.sort(key=lambda p: (p.gain, p.parameter))
     return merge_touching_pairs(family, merged)
+
+
+def boundary_points(family: RankOneFamily) -> list[BoundaryPoint]:
+    """Every value of v at which a moving pole is on the stability boundary, sorted by v."""
+    return boundary_points_of([family])[0]
+
+
+def boundary_points_of(families) -> list[list[BoundaryPoint]]:
+    """:func:`boundary_points` of each family, the candidates of families of one order polished together."""
+    candidates = [_boundary_candidates(family) if family.has_effect else [] for family in families]
+    found: list[list[BoundaryPoint]] = [[] for _ in families]
+    for stack in _stacks(families):
+        owner = np.repeat(np.arange(len(stack.members)), [len(candidates[p]) for p in stack.members])
+        parameters = [parameter for p in stack.members for parameter in candidates[p]]
+        for member, point in _refine_boundary_points(stack, owner, parameters):
+            found[stack.members[member]].append(point)
+    return [_merged_points(family, points) if family.has_effect else [] for family, points in zip(families, found)]
 
 
 def merge_touching_pairs(family: RankOneFamily, points: list[BoundaryPoint]) -> list[BoundaryPoint]:

@@ -34,8 +34,19 @@ class SampledLocus:
 
 
 def match_to(reference: np.ndarray, candidates: np.ndarray) -> np.ndarray:
-    """Permutation p minimising Σ|reference[k] − candidates[p[k]]| (optimal assignment)."""
-    return match_rows(reference[None, :], candidates[None, :])[0]
+    """Permutation p minimising Σ|reference[k] − candidates[p[k]]| (optimal assignment).
+
+    :func:`match_rows` for one row (the same rule: nearest candidates when all differ).
+    """
+    size = reference.size
+    if size <= 1:
+        return np.zeros(size, dtype=int)
+    cost = np.abs(reference[:, None] - candidates[None, :])
+    nearest = np.argmin(cost, axis=1)
+    if len(set(nearest.tolist())) < size:
+        rows, cols = linear_sum_assignment(cost)
+        nearest[rows] = cols
+    return nearest
 
 
 def match_rows(references: np.ndarray, candidates: np.ndarray) -> np.ndarray:

@@ -9,6 +9,7 @@ import math
 import mpmath
 import numpy as np
 import pytest
+import scipy.linalg
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
@@ -25,6 +26,7 @@ from gainboard.core import (
     match_poles,
     sort_poles,
 )
+from gainboard.core import _closed_loop as closed_loop_module
 
 # reference case 1 (/work/shared/reference-cases.md)
 CASE1_A = [[0.0, 1.0, 0.0], [0.0, 0.0, 1.0], [-1.0, -5.0, -6.0]]
@@ -243,6 +245,105 @@ def test_closed_loop_refuses_a_gain_of_the_wrong_shape():
 def test_analyze_state_matrix_refuses_a_non_square_matrix():
     with pytest.raises(AnalysisError, match=r"must be square \(n×n\), but its shape is \(2, 3\)"):
         analyze_state_matrix(np.zeros((2, 3)))
+
+
+# -- the shared eigendecomposition ------------------------------------------------------------------
+
+
+def _awkward_matrix(rng, n, kind):
+    """A random real matrix: dense, badly scaled (balancing scales it), or with isolated eigenvalues
+    (balancing permutes them to the ends), or with an exactly repeated complex pair."""
+    matrix = rng.standard_normal((n, n))
+    if kind == "scaled":
+        scales = 10.0 ** rng.integers(-6, 7, size=n)
+        matrix = scales[:, None] * matrix / scales[None, :]
+    elif kind == "isolated":
+        # a row (or column) that is zero off the diagonal isolates an eigenvalue: gebal permutes
+        # it to the bottom (or top) of the matrix
+        rows = rng.choice(n, size=max(1, n // 2), replace=False)
+        for k in rows[::2]:
+            diagonal = matrix[k, k]
+            matrix[k, :] = 0.0
+            matrix[k, k] = diagonal
+        for k in rows[1::2]:
+            diagonal = matrix[k, k]
+            matrix[:, k] = 0.0
+            matrix[k, k] = diagonal
+    elif kind == "repeated" and n >= 4:
+        block = np.array([[-1.0, 2.0], [-2.0, -1.0]])
+        matrix[:4, :4] = np.kron(np.eye(2), block)
+        matrix[4:, :4] = 0.0
+    return matrix
+
+
+@settings(max_examples=40, deadline=None)
+@given(seed=st.integers(0, 2**32 - 1), n=st.integers(1, 9), kind=st.sampled_from(["dense", "scaled", "isolated",
+                                                                                   "repeated"]))
+def test_balancing_and_eigenvectors_are_exactly_scipys(seed, n, kind):
+    rng = np.random.default_rng(seed)
+    matrix = _awkward_matrix(rng, n, kind)
+    balanced, scaling, inverse = closed_loop_module._balance(matrix)
+    # reference: scipy.linalg.matrix_balance (the same LAPACK gebal, through scipy's checks), bit for bit
+    expected_balanced, similarity = scipy.linalg.matrix_balance(matrix)
+    np.testing.assert_array_equal(balanced, expected_balanced)
+    np.testing.assert_array_equal(np.diag(scaling)[inverse, :], similarity)
+    # reference: scipy.linalg.eig with left and right vectors (the same LAPACK geev), bit for bit
+    eigenvalues, left, right = closed_loop_module._eigen_with_vectors(balanced)
+    expected = scipy.linalg.eig(balanced, left=True, right=True)
+    for ours, theirs in zip((eigenvalues, left, right), expected):
+        np.testing.assert_array_equal(ours, theirs)
+
+
+@settings(max_examples=40, deadline=None)
+@given(seed=st.integers(0, 2**32 - 1), n=st.integers(1, 8), kind=st.sampled_from(["dense", "scaled", "isolated"]))
+def test_condition_numbers_and_error_estimates_match_a_scipy_reference(seed, n, kind):
+    rng = np.random.default_rng(seed)
+    matrix = _awkward_matrix(rng, n, kind)
+    report = analyze_state_matrix(matrix)
+    # reference: scipy's balancing and eigendecomposition, then Wilkinson's κ = ‖x‖‖y‖/|yᴴx| of the
+    # unit vectors mapped back (Wilkinson, The Algebraic Eigenvalue Problem, 1965, from memory) and the
+    # documented estimate κ_balanced · n · eps · ‖D⁻¹MD‖₂
+    balanced, similarity = scipy.linalg.matrix_balance(matrix)
+    values, left_b, right_b = scipy.linalg.eig(balanced, left=True, right=True)
+    right = similarity @ right_b
+    left = np.linalg.inv(similarity).T @ left_b
+    kappa = np.linalg.norm(left, axis=0) * np.linalg.norm(right, axis=0) / np.abs(np.sum(left.conj() * right, axis=0))
+    kappa_balanced = 1.0 / np.abs(np.sum(left_b.conj() * right_b, axis=0))
+    estimates = kappa_balanced * n * np.finfo(float).eps * np.linalg.norm(balanced, 2)
+    _, order = closed_loop_module._sorted_with_order(values)
+    np.testing.assert_allclose(report.pole_condition_numbers, kappa[order], rtol=1e-9)
+    np.testing.assert_allclose(report.pole_error_estimates, estimates[order], rtol=1e-9)
+    # and the poles themselves are numpy's eigenvalues, matched one to one (numpy as reference)
+    _, _, errors = match_poles(report.poles, np.linalg.eigvals(matrix))
+    assert errors.max() <= 1e-9 * max(1.0, np.abs(report.poles).max()) * max(1.0, report.pole_condition_numbers.max())
+
+
+@settings(max_examples=40, deadline=None)
+@given(seed=st.integers(0, 2**32 - 1), n=st.integers(1, 10))
+def test_sorting_exact_conjugate_pairs_only_reorders_them(seed, n):
+    rng = np.random.default_rng(seed)
+    raw = np.linalg.eigvals(rng.standard_normal((n, n)))
+    poles = sort_poles(raw)
+    # LAPACK returns a real matrix's complex eigenvalues as exact conjugates (conjugate root theorem,
+    # from memory), so nothing needs averaging: the sorted poles are numpy's eigenvalues, bit for bit,
+    # up to order
+    assert sorted(poles.tolist(), key=lambda p: (p.real, p.imag)) == sorted(
+        raw.astype(complex).tolist(), key=lambda p: (p.real, p.imag))
+    # ordering convention (ours): real parts ascending (ties within the rounding tolerance), then
+    # |imaginary part| ascending, the positive member of a pair first
+    tolerance = 100.0 * n * np.finfo(float).eps * np.abs(raw).max()
+    for first, second in zip(poles[:-1], poles[1:]):
+        assert first.real <= second.real + tolerance
+        if abs(first.real - second.real) <= tolerance and first.real <= second.real:
+            assert (abs(first.imag), -first.imag) <= (abs(second.imag), -second.imag)
+
+
+def test_unpaired_and_near_conjugates_still_go_through_the_assignment():
+    # a near-conjugate pair is averaged, an unpaired complex pole is kept (common practice, no source)
+    cleaned, unpaired = closed_loop_module._pair_conjugates(np.array([-1 + 2j, -3 + 1j, -1 - 2.000000000000001j]),
+                                                            1e-12)
+    assert cleaned[0] == np.conj(cleaned[2]) and cleaned[0] == -1 + 2.0000000000000004j
+    assert unpaired.tolist() == [1]
 
 
 # -- match_poles -----------------------------------------------------------------------------------

@@ -191,3 +191,14 @@ def test_bad_range_is_refused_before_anything_is_kept():
     with pytest.raises(GainError, match="range is empty"):
         evaluate_design(CUBIC, CUBIC_K, options)
     assert CUBIC not in single_entry._ENTRY_RECORDS
+
+
+@pytest.mark.parametrize("plant, gain", [(CUBIC, CUBIC_K), (SAMPLED, SAMPLED_K)])
+def test_locus_span_after_adding_the_current_sample_is_the_whole_bounding_box(plant, gain):
+    start = gain[0, 0]
+    for moved in _slider_sequence(gain, (0, 0), start * (1.0 + 0.003 * np.arange(-3, 4))):
+        locus = evaluate_design(plant, moved, DRAG).selected_locus
+        assert moved[0, 0] in locus.gains  # the current sample was added to the kept locus
+        # reference: the diagonal of the bounding box of every sampled pole, by numpy (ptp, hypot)
+        poles = np.asarray(locus.poles)
+        assert locus.span == float(np.hypot(np.ptp(poles.real), np.ptp(poles.imag)))
