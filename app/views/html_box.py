@@ -21,31 +21,52 @@ class LiveHtml(JSComponent):
     html = param.String(default="", doc="The HTML shown.")
 
     # The box never shrinks while updates keep coming (a slider or pole drag): its height only
-    # ratchets up, in whole pixels, and is released once the text has rested for a moment.
+    # ratchets up, in whole pixels, and shrinks to fit once the text has rested for a moment.
     # A box whose height changes, even by the fraction of a pixel a fallback-font glyph (✓, ₁)
     # adds to a line, makes Panel lay out the whole page again: about 20 ms in the browser per
-    # update (CPU profile of a slider drag). Heights are read from a ResizeObserver, after the
-    # browser's own layout, never by forcing a layout inside the update.
+    # update (CPU profile of a slider drag). While updates come, heights are read from a
+    # ResizeObserver, after the browser's own layout, never by forcing a layout in an update.
     _esm = """
-const REST_MS = 400;
+const REST_MS = 1500;
+
+// Bokeh rewrites the position style sheet of every plot renderer on every repaint, even when
+// the text is unchanged, and each rewrite makes the next CSS lookup of a repaint restyle the
+// page: half of a plot's repaint time (CPU profile of a slider drag, Bokeh 3.9). Skipping
+// rewrites that change nothing keeps every style the same. Loaded once, with the page.
+const dom = window.Bokeh && window.Bokeh.require ? window.Bokeh.require('core/dom') : null;
+const sheet = dom && dom.InlineStyleSheet ? dom.InlineStyleSheet.prototype : null;
+if (sheet && typeof sheet._update === 'function' && !sheet._update.skipsUnchanged) {
+  const rewrite = sheet._update;
+  sheet._update = function (css) {
+    if (this.el.textContent !== css) rewrite.call(this, css);
+  };
+  sheet._update.skipsUnchanged = true;
+}
+
 export function render({ model, el }) {
   const box = document.createElement('div');
   box.className = 'gb-live';
   box.innerHTML = model.html;
   let tallest = 0;
   let rest = null;
+  const hold = (height) => {
+    tallest = height;
+    box.style.minHeight = height + 'px';
+  };
   const watcher = new ResizeObserver((entries) => {
     const height = Math.ceil(entries[entries.length - 1].borderBoxSize[0].blockSize);
-    if (height > tallest) {
-      tallest = height;
-      box.style.minHeight = tallest + 'px';
-    }
+    if (height > tallest) hold(height);
   });
   watcher.observe(box);
+  const settle = () => {
+    // idle now: shrink to the text's own height, still a whole number of pixels
+    box.style.minHeight = '';
+    hold(Math.ceil(box.getBoundingClientRect().height));
+  };
   model.on('html', () => {
     box.innerHTML = model.html;
     clearTimeout(rest);
-    rest = setTimeout(() => { tallest = 0; box.style.minHeight = ''; }, REST_MS);
+    rest = setTimeout(settle, REST_MS);
   });
   model.on('remove', () => { clearTimeout(rest); watcher.disconnect(); });
   el.appendChild(box);
