@@ -14,9 +14,9 @@ headless Debian chromium (1366×768) and measures, in the page's own clock:
   ends the gesture, so it includes the full evaluation with margins).
 
 Each step waits for its redraw before the next, so the numbers are latencies,
-not throughput. Prints median and 95th percentile in milliseconds. For scale:
-on this machine a trivial Panel app updates a text about 60 ms (median) after a
-slider change, a plain Bokeh app 51 ms (measured when the project started).
+not throughput. Prints median and 95th percentile in milliseconds. For scale,
+``--floor`` times floor_app.py the same way: one slider redrawing one 2 000-point
+plot, the least any Panel page can do on this machine.
 """
 
 from __future__ import annotations
@@ -71,10 +71,11 @@ def report(name: str, values: list[float]) -> None:
           f"95th percentile {percentile(values, 0.95):.0f} ms, max {max(values):.0f} ms")
 
 
-def measure(plant: str, moves: int) -> None:
+def measure(plant: str, moves: int, floor: bool = False) -> None:
     from playwright.sync_api import sync_playwright
 
-    server = RunningServer(plant)
+    launcher = [sys.executable, str(Path(__file__).resolve().parent / "floor_app.py")] if floor else None
+    server = RunningServer(plant, launcher=launcher)
     try:
         with sync_playwright() as playwright:
             browser = playwright.chromium.launch(executable_path=str(CHROMIUM), args=CHROMIUM_ARGS, headless=True)
@@ -108,7 +109,7 @@ def measure(plant: str, moves: int) -> None:
             browser.close()
     finally:
         server.stop()
-    print(f"plant: {plant}")
+    print("floor: one slider redrawing one plot (floor_app.py)" if floor else f"plant: {plant}")
     report("slider drag → redrawn plots", drag)
     report("slider key → redrawn plots (full evaluation)", keyboard)
 
@@ -117,8 +118,10 @@ def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("plant", nargs="?", default=DEFAULT_PLANT, help="plant file or bundled plant name")
     parser.add_argument("--moves", type=int, default=40, help="slider moves to time (default 40)")
+    parser.add_argument("--floor", action="store_true",
+                        help="time floor_app.py (one slider, one plot) instead of the workbench")
     args = parser.parse_args()
-    measure(args.plant, args.moves)
+    measure(args.plant, args.moves, floor=args.floor)
 
 
 if __name__ == "__main__":
