@@ -285,15 +285,13 @@ class DesignState(param.Parameterized):
             self.param.update(evaluation=evaluation, details_pending=quick, revision=self.revision + 1)
 
     def complete_details(self) -> None:
-        """Replace a quick drag-time evaluation by a complete one (nothing to do when none is pending)."""
+        """Fill in what a quick drag-time evaluation left out (nothing to do when none is pending)."""
         if not self.details_pending:
             return
-        live, self._live = self._live, True  # still the same gesture: margins wait for the release
-        self._details_at = -math.inf
-        try:
-            self._recompute()
-        finally:
-            self._live = live
+        evaluation = core.with_all_entry_intervals(self.evaluation)
+        self._details_at = time.monotonic()
+        with param.edit_constant(self):
+            self.param.update(evaluation=evaluation, details_pending=False, revision=self.revision + 1)
 
     def _set_inputs(self, **changes) -> None:
         """Set inputs together (one evaluation) and raise the evaluation's error if it failed."""

@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import threading
 import weakref
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -31,7 +31,7 @@ from ._spec_checks import check_specs, pole_region
 from ._specs import DesignSpecs
 from ._structure import StructureReport, _fixed_flags, analyze_structure, controllability_staircase
 
-__all__ = ["EvaluationOptions", "DesignEvaluation", "evaluate_design"]
+__all__ = ["EvaluationOptions", "DesignEvaluation", "evaluate_design", "with_all_entry_intervals"]
 
 
 @dataclass(frozen=True)
@@ -264,3 +264,35 @@ def evaluate_design(plant: Plant, gain, options: EvaluationOptions | None = None
         closed_loop_movable=_closed_loop_movable(plant, K, structure, closed_loop),
         messages=tuple(messages),
     )
+
+
+def with_all_entry_intervals(evaluation: DesignEvaluation) -> DesignEvaluation:
+    """The same evaluation with the exact stable interval of every entry of K filled in.
+
+    For an evaluation made with ``include_all_entry_intervals=False`` (a quick one
+    while a gain is dragged), only the intervals are computed and everything else is
+    kept as it is; the selected entry's intervals are shared, as in
+    :func:`evaluate_design`.
+
+    Parameters
+    ----------
+    evaluation : DesignEvaluation
+
+    Returns
+    -------
+    DesignEvaluation
+        ``evaluation`` itself when every entry's intervals are present already.
+
+    Examples
+    --------
+    >>> plant = Plant(A=[[0.0, 1.0], [0.0, 0.0]], B=[[0.0], [1.0]])
+    >>> quick = evaluate_design(plant, [[4.0, 4.0]], EvaluationOptions(include_all_entry_intervals=False))
+    >>> sorted(with_all_entry_intervals(quick).entry_intervals)
+    [(0, 0), (0, 1)]
+    """
+    m, n = evaluation.gain.shape
+    if len(evaluation.entry_intervals) == m * n:
+        return evaluation
+    selected = evaluation.selected_entry
+    known = {} if selected is None else {selected: evaluation.selected_intervals}
+    return replace(evaluation, entry_intervals=_all_entry_intervals(evaluation.plant, evaluation.gain, known))

@@ -133,3 +133,23 @@ def test_poles_no_gain_moves_are_the_uncontrollable_block_and_match_the_full_str
     flag_of = dict(zip(loop.open_loop_poles.tolist(), loop.pole_movable))
     flag_at = {p: flag_of[q] for p, q in zip(ordered.tolist(), matched.tolist())}
     assert tuple(flag_at[p] for p in poles.tolist()) == evaluation.closed_loop_movable
+
+
+def test_a_quick_evaluation_completed_has_every_entry_interval_and_keeps_the_rest():
+    # Reference case 1/5 (shared/reference-cases.md): the companion plant with K = [199, 55, 8];
+    # Routh–Hurwitz on s³ + (6 + k3)s² + (5 + k2)s + (1 + k1) gives −1 < k1 < 839 with k2, k3 fixed.
+    plant = core.Plant(A=[[0.0, 1.0, 0.0], [0.0, 0.0, 1.0], [-1.0, -5.0, -6.0]], B=[[0.0], [0.0], [1.0]])
+    gain = [[199.0, 55.0, 8.0]]
+    quick = core.evaluate_design(plant, gain, core.EvaluationOptions(selected_entry=(0, 1), include_all_entry_intervals=False))
+    assert quick.entry_intervals == {}
+    completed = core.with_all_entry_intervals(quick)
+    assert set(completed.entry_intervals) == {(0, 0), (0, 1), (0, 2)}
+    low, high = completed.entry_intervals[(0, 0)].intervals[0]
+    assert low == pytest.approx(-1.0, abs=1e-9) and high == pytest.approx(839.0, rel=1e-12)
+    # the selected entry's intervals are the very object the locus uses; the rest is the quick one's
+    assert completed.entry_intervals[(0, 1)] is quick.selected_intervals
+    assert completed.responses is quick.responses and completed.closed_loop is quick.closed_loop
+    full = core.evaluate_design(plant, gain, core.EvaluationOptions(selected_entry=(0, 1)))
+    for entry, intervals in full.entry_intervals.items():
+        assert completed.entry_intervals[entry].intervals == intervals.intervals
+    assert core.with_all_entry_intervals(completed) is completed
