@@ -175,6 +175,9 @@ class LimitViolation:
 
 
 # -- interpolation between grid points ---------------------------------------------------
+# These scalar helpers run a handful of times per signal, so they work on Python floats
+# (read from the arrays a few at a time) instead of numpy scalars: the same IEEE
+# arithmetic, several times less interpreter overhead.
 def _hermite_coefficients(t0, t1, y0, y1, d0, d1):
     """Cubic a s³ + b s² + c s + d on s ∈ [0, 1] matching values and slopes (cubic Hermite)."""
     h = t1 - t0
@@ -184,28 +187,6 @@ def _hermite_coefficients(t0, t1, y0, y1, d0, d1):
         float(h * d0),
         float(y0),
     )
-
-
-def _cubic(coefficients, s):
-    a, b, c, d = coefficients
-    return ((a * s + b) * s + c) * s + d
-
-
-def _stationary_points(coefficients) -> list[float]:
-    """Roots in (0, 1) of the derivative 3a s² + 2b s + c, in increasing order."""
-    a, b, c, _ = coefficients
-    qa, qb, qc = 3.0 * a, 2.0 * b, c
-    roots: list[float] = []
-    if qa == 0.0:
-        if qb != 0.0:
-            roots = [-qc / qb]
-    else:
-        discriminant = qb * qb - 4.0 * qa * qc
-        if discriminant >= 0.0:
-            # numerically stable quadratic formula
-            q = -0.5 * (qb + math.copysign(math.sqrt(discriminant), qb))
-            roots = [q / qa] + ([qc / q] if q != 0.0 else [])
-    return sorted(r for r in roots if 0.0 < r < 1.0)
 
 
 def _bisect(coefficients, level, low, high) -> float:
@@ -244,25 +225,84 @@ def _bisect(coefficients, level, low, high) -> float:
     return s
 
 
+def _cubic_roots_in_unit(a: float, b: float, c: float) -> list[float]:
+    """Roots in (0, 1) of 3a s² + 2b s + c (the stationary points of the cubic), increasing."""
+    qa, qb = 3.0 * a, 2.0 * b
+    if qa == 0.0:
+        if qb == 0.0:
+            return []
+        root = -c / qb
+        return [root] if 0.0 < root < 1.0 else []
+    discriminant = qb * qb - 4.0 * qa * c
+    if discriminant < 0.0:
+        return []
+    # numerically stable quadratic formula
+    q = -0.5 * (qb + math.copysign(math.sqrt(discriminant), qb))
+    first = q / qa
+    if q == 0.0:
+        return [first] if 0.0 < first < 1.0 else []
+    second = c / q
+    roots = [r for r in ((first, second) if first <= second else (second, first)) if 0.0 < r < 1.0]
+    return roots
+
+
 def _crossing(time, values, slopes, k: int, level: float, last: bool = False, at_samples: bool = False) -> float:
     """Time in [t_k, t_{k+1}] where the signal crosses ``level`` (first or last crossing).
 
     With ``at_samples`` (a sampled plant, whose signals exist only at the samples)
-    the answer is the sample t_{k+1} where the new side is first seen.
+    the answer is the sample t_{k+1} where the new side is first seen. With slopes, the
+    crossing of the cubic Hermite interpolant is found on its first (or last) monotone
+    piece that changes side, by :func:`_bisect` (written out here: this runs a few
+    times per signal on every update).
     """
     if at_samples:
         return float(time[k + 1])
-    t0, t1 = float(time[k]), float(time[k + 1])
-    y0, y1 = float(values[k]), float(values[k + 1])
-    if slopes is not None and math.isfinite(slopes[k]) and math.isfinite(slopes[k + 1]):
-        coefficients = _hermite_coefficients(t0, t1, y0, y1, slopes[k], slopes[k + 1])
-        edges = [0.0, *_stationary_points(coefficients), 1.0]
-        pieces = list(zip(edges[:-1], edges[1:]))
-        for low, high in reversed(pieces) if last else pieces:
-            f_low = _cubic(coefficients, low) - level
-            f_high = _cubic(coefficients, high) - level
-            if f_low == 0.0 or f_high == 0.0 or (f_low > 0.0) != (f_high > 0.0):
-                return t0 + _bisect(coefficients, level, low, high) * (t1 - t0)
+    t0, t1 = time[k : k + 2].tolist()
+    y0, y1 = values[k : k + 2].tolist()
+    if slopes is not None:
+        d0, d1 = slopes[k : k + 2].tolist()
+        if math.isfinite(d0) and math.isfinite(d1):
+            h = t1 - t0
+            # cubic Hermite coefficients, as _hermite_coefficients
+            a = 2 * y0 + h * d0 - 2 * y1 + h * d1
+            b = -3 * y0 - 2 * h * d0 + 3 * y1 - h * d1
+            c = h * d0
+            edges = [0.0, *_cubic_roots_in_unit(a, b, c), 1.0]
+            pieces = range(len(edges) - 2, -1, -1) if last else range(len(edges) - 1)
+            for j in pieces:
+                low, high = edges[j], edges[j + 1]
+                f_low = ((a * low + b) * low + c) * low + y0 - level
+                f_high = ((a * high + b) * high + c) * high + y0 - level
+                if not (f_low == 0.0 or f_high == 0.0 or (f_low > 0.0) != (f_high > 0.0)):
+                    continue
+                # _bisect(coefficients, level, low, high), inline
+                d = y0 - level
+                f_low = ((a * low + b) * low + c) * low + d
+                f_high = ((a * high + b) * high + c) * high + d
+                if f_low == 0.0:
+                    return t0 + low * h
+                if f_high == 0.0:
+                    return t0 + high * h
+                s = low - f_low * (high - low) / (f_high - f_low)
+                if not low < s < high:
+                    s = 0.5 * (low + high)
+                for _ in range(60):
+                    f = ((a * s + b) * s + c) * s + d
+                    if f == 0.0:
+                        break
+                    if (f > 0.0) == (f_low > 0.0):
+                        low, f_low = s, f
+                    else:
+                        high = s
+                    slope = (3.0 * a * s + 2.0 * b) * s + c
+                    following = s - f / slope if slope != 0.0 else 0.5 * (low + high)
+                    if not low < following < high:
+                        following = 0.5 * (low + high)
+                    if abs(following - s) <= 1e-16 or high - low <= 1e-15:
+                        s = following
+                        break
+                    s = following
+                return t0 + s * h
     if y1 == y0:
         return t0
     s = min(max((level - y0) / (y1 - y0), 0.0), 1.0)
@@ -271,33 +311,61 @@ def _crossing(time, values, slopes, k: int, level: float, last: bool = False, at
 
 def _refined_extreme(time, values, slopes, k: int, direction: float, at_samples: bool = False):
     """Time and value of the local maximum of direction·y near grid point k."""
-    best_t, best_y = float(time[k]), float(values[k])
     if at_samples:
-        return best_t, best_y
+        return float(time[k]), float(values[k])
     count = len(values)
+    low, high = max(k - 1, 0), min(k + 2, count)
+    t = time[low:high].tolist()
+    y = values[low:high].tolist()
+    here = k - low
+    best_t, best_y = t[here], y[here]
     if slopes is not None:
-        for j in (k - 1, k):
-            if j < 0 or j + 1 >= count or not (math.isfinite(slopes[j]) and math.isfinite(slopes[j + 1])):
+        slope = slopes[low:high].tolist()
+        last = len(y) - 1
+        for j in (here - 1, here):
+            if j < 0 or j >= last:
                 continue
-            coefficients = _hermite_coefficients(time[j], time[j + 1], values[j], values[j + 1],
-                                                 slopes[j], slopes[j + 1])
-            for s in _stationary_points(coefficients):
-                y = _cubic(coefficients, s)
-                if direction * y > direction * best_y:
-                    best_t, best_y = float(time[j] + s * (time[j + 1] - time[j])), float(y)
+            d0, d1 = slope[j], slope[j + 1]
+            if not (math.isfinite(d0) and math.isfinite(d1)):
+                continue
+            a, b, c, d = _hermite_coefficients(t[j], t[j + 1], y[j], y[j + 1], d0, d1)
+            for s in _cubic_roots_in_unit(a, b, c):
+                value = ((a * s + b) * s + c) * s + d
+                if direction * value > direction * best_y:
+                    best_t, best_y = t[j] + s * (t[j + 1] - t[j]), value
         return best_t, best_y
     if 0 < k < count - 1:
         # parabola through three equally spaced points
-        ym, y0, yp = float(values[k - 1]), float(values[k]), float(values[k + 1])
+        ym, y0, yp = y
         curvature = ym - 2 * y0 + yp
         if curvature != 0.0:
             s = 0.5 * (ym - yp) / curvature
             if -1.0 <= s <= 1.0:
-                y = y0 - 0.25 * (ym - yp) * s
-                if direction * y > direction * best_y:
-                    h = float(time[k + 1] - time[k])
-                    best_t, best_y = float(time[k] + s * h), float(y)
+                value = y0 - 0.25 * (ym - yp) * s
+                if direction * value > direction * best_y:
+                    best_t, best_y = t[1] + s * (t[2] - t[1]), value
     return best_t, best_y
+
+
+class _Column:
+    """One signal of a batch, with its refinements remembered (several metrics refine the same point)."""
+
+    __slots__ = ("_refined", "at_samples", "slopes", "time", "values")
+
+    def __init__(self, time, values, slopes, at_samples):
+        self.time, self.values, self.slopes, self.at_samples = time, values, slopes, at_samples
+        self._refined = {}
+
+    def extreme(self, k: int, direction: float):
+        key = (k, direction)
+        found = self._refined.get(key)
+        if found is None:
+            found = self._refined[key] = _refined_extreme(self.time, self.values, self.slopes, k, direction,
+                                                          self.at_samples)
+        return found
+
+    def crossing(self, k: int, level: float, last: bool = False) -> float:
+        return _crossing(self.time, self.values, self.slopes, k, level, last=last, at_samples=self.at_samples)
 
 
 # -- the individual measurements ------------------------------------------------------------
@@ -339,25 +407,34 @@ def settling_time(time, values, slopes, final: float, band_width: float, at_samp
     return _crossing(time, values, slopes, last, level, last=True, at_samples=at_samples)
 
 
-def _peak(time, values, slopes, direction: float, at_samples: bool) -> tuple[float, float]:
-    """First highest peak of direction·y: (time, value), refined between grid points.
+def _peak_candidates(signals: np.ndarray, tops: np.ndarray, scales: np.ndarray) -> list[np.ndarray]:
+    """Per row of ``signals`` (c, N): the local maxima within 10⁻³·scale of the row's top, in time order.
+
+    An end point needs only its one neighbour to count as a local maximum.
+    """
+    rows, count = signals.shape
+    near = np.flatnonzero(signals >= (tops - 1e-3 * scales)[:, None])  # few points, sorted by row then time
+    row, k = np.divmod(near, count)
+    flat = signals.reshape(-1)
+    here = flat[near]
+    local = (here >= flat[np.where(k > 0, near - 1, near)]) & (here >= flat[np.where(k < count - 1, near + 1, near)])
+    row, k = row[local], k[local]
+    bounds = np.searchsorted(row, np.arange(rows + 1)).tolist()
+    return [k[bounds[j] : bounds[j + 1]] for j in range(rows)]
+
+
+def _peak(cell: _Column, candidates: np.ndarray, scale: float, direction: float) -> tuple[float, float]:
+    """First highest peak of direction·y among the candidate grid points, refined between grid points.
 
     Every local maximum near the top is refined, and the earliest within 10⁻⁶ (relative)
     of the highest wins (the accuracy of the refinement), so an undamped loop reports
     its first peak.
     """
-    signal = direction * np.asarray(values, dtype=float)
-    top = float(signal.max())
-    scale = max(abs(top), abs(float(signal.min())), 1e-300)
-    near = np.flatnonzero(signal >= top - 1e-3 * scale)
-    # local maxima among the points near the top (an end point needs only its one neighbour)
-    last = signal.size - 1
-    here = signal[near]
-    local = (here >= signal[np.maximum(near - 1, 0)]) & (here >= signal[np.minimum(near + 1, last)])
-    candidates = near[local]
     if candidates.size == 0:
-        candidates = np.array([int(signal.argmax())])
-    refined = [_refined_extreme(time, values, slopes, int(k), direction, at_samples) for k in candidates[:50]]
+        candidates = np.array([int((direction * cell.values).argmax())])
+    if candidates.size == 1:  # the usual case: one point at the top
+        return cell.extreme(int(candidates[0]), direction)
+    refined = [cell.extreme(k, direction) for k in candidates[:50].tolist()]
     best = max(direction * value for _, value in refined)
     for t, value in refined:
         if direction * value >= best - 1e-6 * scale:
@@ -365,15 +442,173 @@ def _peak(time, values, slopes, direction: float, at_samples: bool) -> tuple[flo
     return refined[0]
 
 
-def _first_reaching(time, values, slopes, start, change, fraction, at_samples=False):
-    """First time y has travelled ``fraction`` of ``change`` from ``start`` (nan if never)."""
-    reached = (values - start) / change >= fraction
-    k = int(reached.argmax())
-    if not reached[k]:
-        return NAN
-    if k == 0:
-        return float(time[0])
-    return _crossing(time, values, slopes, k - 1, start + fraction * change, at_samples=at_samples)
+_STILL = "the output does not move in this response"
+_STILL_METRICS = tuple((metric, _STILL) for metric in ("rise_time", "settling_time", "overshoot_percent",
+                                                         "peak_value", "peak_time"))
+
+
+def _measure_output_rows(time, values, slopes, *, regulation, starts, finals, targets, band, noise_floors,
+                         indices, names, final_reasons, final_notes, target_reasons,
+                         at_samples, extremes=None) -> list[OutputMetrics]:
+    """:func:`measure_output` for every row of ``values`` (c, N) at once.
+
+    Each row is one output of one response, on the common time grid ``time`` (N,);
+    ``slopes`` is None or (c, N) like ``values``. The passes over the N grid points are
+    done for all rows together (a few numpy calls along contiguous rows); only the
+    refinements between grid points run row by row. ``regulation`` … ``target_reasons``
+    are sequences with one entry per row; ``extremes`` may bring the lists of each row's
+    largest and smallest value when the caller has them.
+    """
+    values = np.asarray(values, dtype=float)
+    rows, count = values.shape
+    start_list = [float(s) for s in starts]
+    final_list = [float(f) for f in finals]
+    target_list = [float(t) for t in targets]
+    highest, lowest = extremes if extremes is not None else (values.max(axis=1).tolist(), values.min(axis=1).tolist())
+    first = values[:, 0].tolist()
+
+    # 1. Rows that do not move; the direction of each peak. Extremes of y − y₀ and of |y|
+    # are read from the row's largest and smallest value (subtraction and |·| are monotone
+    # in y, so this is exactly the maximum over the grid points).
+    results: list = [None] * rows
+    directions = [1.0] * rows
+    for j in range(rows):
+        start, final, y0 = start_list[j], final_list[j], first[j]
+        excursion = max(max(highest[j] - y0, y0 - lowest[j]), abs(y0 - start))
+        finite_final = math.isfinite(final)
+        if excursion <= noise_floors[j] and (not finite_final or abs(final - start) <= noise_floors[j]):
+            if finite_final and math.isfinite(target_list[j]):
+                error, extra = target_list[j] - final, ()
+            else:
+                error, extra = NAN, (("steady_state_error", _STILL),)
+            results[j] = OutputMetrics(indices[j], names[j], NAN, NAN, NAN, NAN, NAN, error, final, start,
+                                       target_list[j], _STILL_METRICS + extra)
+            continue
+        # Peak: regulation → largest magnitude; step → extreme in the direction of the change.
+        if regulation[j]:
+            # the sign of y where |y| is largest (first such point on a tie of the two extremes)
+            if abs(highest[j]) > abs(lowest[j]):
+                at_largest = highest[j]
+            elif abs(lowest[j]) > abs(highest[j]):
+                at_largest = lowest[j]
+            else:
+                row = values[j]
+                at_largest = highest[j] if int(row.argmax()) <= int(row.argmin()) else lowest[j]
+            directions[j] = 1.0 if at_largest >= 0 else -1.0
+        elif finite_final and abs(final - start) > NEGLIGIBLE_CHANGE * excursion:
+            directions[j] = 1.0 if final > start else -1.0
+        else:
+            farthest = int(np.argmax(np.abs(values[j] - start)))
+            directions[j] = 1.0 if values[j, farthest] >= start else -1.0
+    active = [j for j in range(rows) if results[j] is None]
+    if not active:
+        return results
+
+    # 2. Peaks: signal = direction·y, whose top and bottom follow from the extremes of y.
+    tops = [highest[j] if directions[j] > 0 else -lowest[j] for j in range(rows)]
+    bottoms = [lowest[j] if directions[j] > 0 else -highest[j] for j in range(rows)]
+    peak_scales = [max(abs(tops[j]), abs(bottoms[j]), 1e-300) for j in range(rows)]
+    # one scratch block serves the successive full-size passes (signals, deviations,
+    # distances, travel), so a long response needs no fresh memory for each of them
+    scratch = np.multiply(values, np.array(directions)[:, None])
+    candidates = _peak_candidates(scratch, np.array(tops), np.array(peak_scales))
+    deviations = np.subtract(values, np.array(final_list)[:, None], out=scratch)
+    # first grid point farthest above / below the final value; |y − final| is largest at
+    # one of them (the earlier one on a tie), and so is the overshoot past it
+    above_at, below_at = deviations.argmax(axis=1).tolist(), deviations.argmin(axis=1).tolist()
+    farthest_from_final = []
+    for j in range(rows):
+        high, low = abs(float(deviations[j, above_at[j]])), abs(float(deviations[j, below_at[j]]))
+        farthest_from_final.append(above_at[j] if high > low else below_at[j] if low > high
+                                   else min(above_at[j], below_at[j]))
+    distance = np.abs(deviations, out=scratch)
+
+    cells = {}
+    peaks = {}
+    bands = [math.inf] * rows
+    changes = [1.0] * rows  # rows that do not move divide by 1 (their travel is not used)
+    moving = [False] * rows
+    measured = []
+    for j in active:
+        cell = cells[j] = _Column(time, values[j], None if slopes is None else slopes[j], at_samples)
+        peaks[j] = _peak(cell, candidates[j], peak_scales[j], directions[j])
+        final, start = final_list[j], start_list[j]
+        if not math.isfinite(final):
+            continue
+        measured.append(j)
+        k = farthest_from_final[j]
+        side = 1.0 if values[j, k] >= final else -1.0
+        _, extreme = cell.extreme(k, side)
+        deviation = max(abs(extreme - final), abs(start - final))
+        change = final - start
+        moving[j] = abs(change) > NEGLIGIBLE_CHANGE * deviation
+        if moving[j]:
+            changes[j] = change
+        # Settling band: relative to the step size for a reference step, to the largest
+        # deviation from the final value for regulation (or when the output ends where it began).
+        scale = abs(change) if (moving[j] and not regulation[j]) else deviation
+        bands[j] = band * scale
+
+    last_outside = first_10 = first_90 = overshoot_at = None
+    if measured:
+        outside = distance > np.array(bands)[:, None]
+        last_outside = (count - 1 - outside[:, ::-1].argmax(axis=1)).tolist()
+        if any(moving):
+            travelled = np.subtract(values, np.array(start_list)[:, None], out=scratch)
+            np.divide(travelled, np.array(changes)[:, None], out=travelled)
+            reached_10, reached_90 = travelled >= 0.1, travelled >= 0.9
+            first_10, first_90 = reached_10.argmax(axis=1).tolist(), reached_90.argmax(axis=1).tolist()
+            overshoot_at = [above_at[j] if changes[j] > 0 else below_at[j] for j in range(rows)]
+
+    for j in active:
+        cell, final, start = cells[j], final_list[j], start_list[j]
+        peak_time, peak_value = peaks[j]
+        rise = settle = overshoot = error = NAN
+        note = []
+        if not math.isfinite(final):
+            why = final_reasons[j] or "the response has no final value"
+            note = [(metric, why) for metric in ("rise_time", "settling_time", "overshoot_percent",
+                                                 "steady_state_error")]
+        else:
+            if final_notes[j]:
+                note.append(("final_value", final_notes[j]))
+            if math.isfinite(target_list[j]):
+                error = target_list[j] - final
+            else:
+                note.append(("steady_state_error", target_reasons[j] or "this output has no target"))
+            k = last_outside[j]
+            if not outside[j, k]:
+                settle = 0.0
+            elif k < count - 1:
+                level = final + math.copysign(bands[j], float(values[j, k]) - final)
+                settle = cell.crossing(k, level, last=True)
+            if not math.isfinite(settle):
+                note.append(("settling_time", f"still outside the ±{band:.3g} band at the end of the horizon"))
+            if moving[j]:
+                change = changes[j]
+                times = []
+                for fraction, reached, first_at in ((0.1, reached_10, first_10), (0.9, reached_90, first_90)):
+                    k = first_at[j]
+                    if not reached[j, k]:
+                        times.append(NAN)
+                    elif k == 0:
+                        times.append(float(time[0]))
+                    else:
+                        times.append(cell.crossing(k - 1, start + fraction * change))
+                if math.isfinite(times[0]) and math.isfinite(times[1]):
+                    rise = times[1] - times[0]
+                else:
+                    note.append(("rise_time", "the output does not reach 90 % of its change within the horizon"))
+                direction = 1.0 if change > 0 else -1.0
+                _, extreme = cell.extreme(overshoot_at[j], direction)
+                overshoot = max(0.0, direction * (extreme - final)) / abs(change) * 100.0
+            else:
+                why = "the output starts and ends at the same value, so it has no rise or overshoot"
+                note.append(("rise_time", why))
+                note.append(("overshoot_percent", why))
+        results[j] = OutputMetrics(indices[j], names[j], rise, settle, overshoot, peak_value, peak_time, error,
+                                   final, start, target_list[j], tuple(note))
+    return results
 
 
 def measure_output(
@@ -417,86 +652,40 @@ def measure_output(
     at_samples : bool
         The signal exists only at the samples (sampled plant): times and peaks are
         read at the samples instead of interpolated between them.
+
+    Examples
+    --------
+    >>> t = np.linspace(0.0, 8.0, 801)
+    >>> y = 1.0 - np.exp(-t)  # first-order step: no overshoot, rise time ln 9
+    >>> m = measure_output(t, y, np.exp(-t), kind="step", start=0.0, final=1.0, target=1.0, band=0.02,
+    ...                    index=0, name="y", noise_floor=0.0)
+    >>> round(m.rise_time, 6), m.overshoot_percent, round(m.settling_time, 6)  # ln 9, 0, ln 50
+    (2.197225, 0.0, 3.912023)
     """
-    reasons: list[tuple[str, str]] = []
-    result = dict(
-        rise_time=NAN,
-        settling_time=NAN,
-        overshoot_percent=NAN,
-        peak_value=NAN,
-        peak_time=NAN,
-        steady_state_error=NAN,
-    )
     values = np.asarray(values, dtype=float)
-    regulation = kind != "step"
+    return _measure_output_rows(
+        np.asarray(time, dtype=float), values[None, :], None if slopes is None else np.asarray(slopes, float)[None, :],
+        regulation=[kind != "step"], starts=[start], finals=[final], targets=[target], band=band,
+        noise_floors=[noise_floor], indices=[index], names=[name], final_reasons=[final_reason],
+        final_notes=[final_note], target_reasons=[target_reason], at_samples=at_samples,
+    )[0]
 
-    excursion = max(float(np.abs(values - values[0]).max()), abs(float(values[0]) - start))
-    if excursion <= noise_floor and (not math.isfinite(final) or abs(final - start) <= noise_floor):
-        why = "the output does not move in this response"
-        reasons.extend((metric, why) for metric in result)
-        if math.isfinite(final) and math.isfinite(target):
-            result["steady_state_error"] = target - final
-            reasons = [(m, w) for m, w in reasons if m != "steady_state_error"]
-        return OutputMetrics(index, name, **result, final_value=final, start_value=start, target=target,
-                             undefined_reasons=tuple(reasons))
 
-    # Peak: regulation → largest magnitude; step → extreme in the direction of the change.
-    if regulation:
-        k = int(np.abs(values).argmax())
-        direction = 1.0 if values[k] >= 0 else -1.0
-    else:
-        if math.isfinite(final) and abs(final - start) > NEGLIGIBLE_CHANGE * excursion:
-            direction = 1.0 if final > start else -1.0
-        else:
-            farthest = int(np.argmax(np.abs(values - start)))
-            direction = 1.0 if values[farthest] >= start else -1.0
-    result["peak_time"], result["peak_value"] = _peak(time, values, slopes, direction, at_samples)
-
-    if not math.isfinite(final):
-        for metric in ("rise_time", "settling_time", "overshoot_percent", "steady_state_error"):
-            reasons.append((metric, final_reason or "the response has no final value"))
-        return OutputMetrics(index, name, **result, final_value=final, start_value=start, target=target,
-                             undefined_reasons=tuple(reasons))
-    if final_note:
-        reasons.append(("final_value", final_note))
-
-    if math.isfinite(target):
-        result["steady_state_error"] = target - final
-    else:
-        reasons.append(("steady_state_error", target_reason or "this output has no target"))
-
-    change = final - start
-    farthest = int(np.abs(values - final).argmax())
-    side = 1.0 if values[farthest] >= final else -1.0
-    _, extreme = _refined_extreme(time, values, slopes, farthest, side, at_samples)
-    deviation = max(abs(extreme - final), abs(start - final))
-    moves = abs(change) > NEGLIGIBLE_CHANGE * deviation
-
-    # Settling band: relative to the step size for a reference step, to the largest
-    # deviation from the final value for regulation (or when the output ends where it began).
-    scale = abs(change) if (moves and not regulation) else deviation
-    result["settling_time"] = settling_time(time, values, slopes, final, band * scale, at_samples)
-    if not math.isfinite(result["settling_time"]):
-        reasons.append(("settling_time", f"still outside the ±{band:.3g} band at the end of the horizon"))
-
-    if moves:
-        t10 = _first_reaching(time, values, slopes, start, change, 0.1, at_samples)
-        t90 = _first_reaching(time, values, slopes, start, change, 0.9, at_samples)
-        if math.isfinite(t10) and math.isfinite(t90):
-            result["rise_time"] = t90 - t10
-        else:
-            reasons.append(("rise_time", "the output does not reach 90 % of its change within the horizon"))
-        direction = 1.0 if change > 0 else -1.0
-        j = int((direction * (values - final)).argmax())
-        _, extreme = _refined_extreme(time, values, slopes, j, direction, at_samples)
-        result["overshoot_percent"] = max(0.0, direction * (extreme - final)) / abs(change) * 100.0
-    else:
-        why = "the output starts and ends at the same value, so it has no rise or overshoot"
-        reasons.append(("rise_time", why))
-        reasons.append(("overshoot_percent", why))
-
-    return OutputMetrics(index, name, **result, final_value=final, start_value=start, target=target,
-                         undefined_reasons=tuple(reasons))
+def _measure_input_rows(time, values, slopes, *, energies, indices, names, energy_reasons,
+                        at_samples) -> list[InputMetrics]:
+    """:func:`measure_input` for every row of ``values`` (c, N) at once (``slopes`` None or (c, N))."""
+    values = np.asarray(values, dtype=float)
+    largest_at = np.abs(values).argmax(axis=1).tolist()
+    results = []
+    for j, k in enumerate(largest_at):
+        row = values[j]
+        direction = 1.0 if row[k] >= 0 else -1.0
+        peak_time, peak = _refined_extreme(time, row, None if slopes is None else slopes[j], k, direction,
+                                           at_samples)
+        energy = energies[j]
+        reasons = () if math.isfinite(energy) else (("energy", energy_reasons[j] or "not available"),)
+        results.append(InputMetrics(indices[j], names[j], abs(peak), peak_time, energy, reasons))
+    return results
 
 
 def measure_input(time, values, slopes, *, energy: float, index: int, name: str, energy_reason: str = "",
@@ -513,22 +702,26 @@ def measure_input(time, values, slopes, *, energy: float, index: int, name: str,
         Which input.
     """
     values = np.asarray(values, dtype=float)
-    k = int(np.argmax(np.abs(values)))
-    direction = 1.0 if values[k] >= 0 else -1.0
-    peak_time, peak = _refined_extreme(time, values, slopes, k, direction, at_samples)
-    reasons = () if math.isfinite(energy) else (("energy", energy_reason or "not available"),)
-    return InputMetrics(index, name, abs(peak), peak_time, energy, reasons)
+    return _measure_input_rows(
+        np.asarray(time, dtype=float), values[None, :], None if slopes is None else np.asarray(slopes, float)[None, :],
+        energies=[energy], indices=[index], names=[name], energy_reasons=[energy_reason], at_samples=at_samples,
+    )[0]
 
 
-def _time_beyond(time, values, slopes, level: float, side: float) -> float:
+def _time_beyond(time, values, slopes, level: float, side: float, widths=None) -> float:
     """Total time where side·(y − level) > 0, with crossings placed as in :func:`_crossing`."""
-    signal = side * (values - level)
-    a, b = signal[:-1], signal[1:]
-    width = np.diff(time)
-    total = float(np.sum(width[(a > 0) & (b > 0)]))
-    for k in np.flatnonzero((a > 0) != (b > 0)):
-        crossing = _crossing(time, values, slopes, int(k), level)
-        total += (crossing - time[k]) if a[k] > 0 else (time[k + 1] - crossing)
+    signal = values - level if side > 0 else level - values  # side·(y − level), exactly
+    positive = signal > 0
+    a, b = positive[:-1], positive[1:]
+    width = np.diff(time) if widths is None else widths
+    total = float(np.sum(width[a & b]))
+    changes = np.flatnonzero(a != b)
+    if changes.size:
+        times = time.tolist() if changes.size > 8 else None
+        for k in changes.tolist():
+            crossing = _crossing(time, values, slopes, k, level)
+            t0, t1 = (times[k], times[k + 1]) if times is not None else time[k : k + 2].tolist()
+            total += (crossing - t0) if a[k] else (t1 - crossing)
     return total
 
 
@@ -544,13 +737,15 @@ def find_limit_violation(time, values, slopes, *, low: float, high: float, index
     (True, 0.5, 1.0, 0.5)
     """
     values = np.asarray(values, dtype=float)
+    time = np.asarray(time, dtype=float)
     low, high = float(low), float(high)
     above = values - high
     below = low - values
     excess = np.maximum(np.maximum(above, below), 0.0)
-    if not np.any(excess > 0.0):
+    outside = excess > 0.0
+    k = int(outside.argmax())
+    if not outside[k]:
         return LimitViolation(index, name, low, high, False, NAN, 0.0, 0.0, "", 0.0)
-    k = int(np.flatnonzero(excess > 0.0)[0])
     if k == 0:
         first = float(time[0])
     else:
@@ -562,9 +757,11 @@ def find_limit_violation(time, values, slopes, *, low: float, high: float, index
     reference = abs(limit) if limit != 0.0 else high - low
     span = float(time[-1] - time[0])
     if at_samples:  # each sample is held for one period; the last one starts after the horizon
-        beyond = float(np.sum(np.diff(time) * (excess[:-1] > 0.0)))
+        beyond = float(np.sum(np.diff(time) * outside[:-1]))
     else:
-        beyond = _time_beyond(time, values, slopes, high, 1.0) + _time_beyond(time, values, slopes, low, -1.0)
+        widths = np.diff(time)
+        beyond = (_time_beyond(time, values, slopes, high, 1.0, widths)
+                  + _time_beyond(time, values, slopes, low, -1.0, widths))
     return LimitViolation(
         index,
         name,

@@ -26,6 +26,9 @@ __all__ = [
     "propagate_affine",
     "propagate_many",
     "integral_of_quadratic",
+    "energy_projections",
+    "projected_energies",
+    "step_energies",
     "SwitchingLoop",
 ]
 
@@ -245,6 +248,11 @@ def propagate_many(step: np.ndarray, starts, count: int) -> np.ndarray:
     -------
     numpy.ndarray, shape (count, r, d)
         Overflowing entries of an unstable loop become inf; callers cut at their blow-up threshold.
+
+    Examples
+    --------
+    >>> propagate_many(np.array([[0.5, 1.0], [0.0, 1.0]]), [[1.0, 0.0], [0.0, 1.0]], 3)[:, :, 0].T.tolist()
+    [[1.0, 0.5, 0.25], [0.0, 1.0, 1.5]]
     """
     starts = np.asarray(starts, dtype=float)
     r, d = starts.shape
@@ -308,6 +316,244 @@ def integral_of_quadratic(generator: np.ndarray, weight: np.ndarray, time_step: 
     return integral * scale
 
 
+#: Taylor terms of e^{Fτ} summed by :func:`energy_projections`.
+_ENERGY_TERMS = 32
+#: Growth bounds θ (‖(Fτ)^a‖₁ ≤ θ^a for the later terms) served by a stored factor of the
+#: Taylor Gram matrix; a step whose bound exceeds the largest is halved until it does not.
+#: With θ ≤ 2 the terms left out sum to at most 2³²/32! ≈ 2·10⁻²⁶ of the leading one.
+_ENERGY_GROWTHS = (0.25, 0.5, 1.0, 2.0)
+#: Most halvings of the step served by the projected form (2^k blocks of columns); beyond,
+#: the weights are built by :func:`integral_of_quadratic`.
+_ENERGY_MOST_HALVINGS = 4
+
+
+def _taylor_product_factor(growth: float) -> np.ndarray:
+    """Columns R with R Rᵀ ≈ H for Taylor vectors whose a-th term is at most growth^a.
+
+    H_ab = ∫₀¹ s^{a+b} ds / (a! b!) = 1 / ((a + b + 1) a! b!) is the Gram matrix of the
+    Taylor terms s^a/a! on [0, 1]. With D = diag(θ^a) the scaled matrix D H D has
+    eigenvalues that fall off faster than geometrically; the directions below 10⁻¹⁶ of
+    the largest (the rounding level of the eigen-decomposition itself) are left out,
+    which keeps 5 to 9 of the 32, and R = D⁻¹ V Λ^{1/2}.
+    """
+    terms = _ENERGY_TERMS
+    gram = np.array([[1.0 / ((a + b + 1) * math.factorial(a) * math.factorial(b)) for b in range(terms)]
+                     for a in range(terms)])
+    scale = growth ** np.arange(terms)
+    values, vectors = np.linalg.eigh(scale[:, None] * gram * scale[None, :])
+    values, vectors = values[::-1], vectors[:, ::-1]
+    keep = values >= 1e-16 * values[0]
+    return vectors[:, keep] * np.sqrt(values[keep]) / scale[:, None]
+
+
+_TAYLOR_PRODUCT_FACTORS = {growth: _taylor_product_factor(growth) for growth in _ENERGY_GROWTHS}
+
+
+def _power_growth(matrix: np.ndarray) -> float:
+    """α with ‖M^a‖₁ ≤ α^a for every a ≥ 20: min(‖M‖₁, α₂ … α₅), α_p = max(‖M^p‖^{1/p}, ‖M^{p+1}‖^{1/(p+1)}).
+
+    Al-Mohy & Higham, "A new scaling and squaring algorithm for the matrix
+    exponential", SIAM J. Matrix Anal. Appl. 31(3), 2009, Theorem 4.2 (valid for
+    a ≥ p(p − 1)): much closer to the spectral radius than ‖M‖₁ for a non-normal M,
+    so a step is not cut into more pieces than the series needs.
+    """
+    norm = float(np.abs(matrix).sum(axis=0).max())
+    # the powers pay off when they can spare a halving, or a few projection columns of a
+    # long trajectory of a large state
+    if norm <= _ENERGY_GROWTHS[0] or (norm <= _ENERGY_GROWTHS[-1] and matrix.shape[0] < 16):
+        return norm
+    roots = {}
+    power = matrix
+    for p in range(2, 7):
+        power = power @ matrix
+        roots[p] = float(np.abs(power).sum(axis=0).max()) ** (1.0 / p)
+    return min(norm, *(max(roots[p], roots[p + 1]) for p in (2, 3, 4, 5)))
+
+
+def _energy_generator(loop, forcings, applied, time_step):
+    """(F̂, Ĝ, scales, halvings, θ): the generator and input map with the constant states rescaled.
+
+    Powers of two bring each forcing column to the size of the loop (an exact rescaling
+    z = S ẑ, only ever shrinking a column); the step is to be cut into 2^halvings
+    pieces, after which the powers of F̂τ grow at most like θ^a. ``halvings`` is None
+    when the generator is not finite.
+    """
+    n, r = forcings.shape
+    d = n + r
+    loop_size = float(np.abs(loop).sum(axis=0).max()) if n else 0.0
+    scales = np.ones(d)
+    smallest = _ENERGY_GROWTHS[0]
+    for j, size in enumerate(np.abs(forcings).sum(axis=0).tolist()):
+        if size > loop_size and size * time_step > smallest:
+            scales[n + j] = 2.0 ** math.floor(math.log2(max(loop_size, smallest / time_step) / size))
+    generator = np.zeros((d, d))
+    generator[:n, :n] = loop
+    generator[:n, n:] = forcings * scales[n:]
+    with np.errstate(over="ignore", invalid="ignore"):
+        growth = _power_growth(generator * time_step)
+    if not math.isfinite(growth):
+        return generator, applied * scales, scales, None, None
+    largest = _ENERGY_GROWTHS[-1]
+    halvings = max(0, math.ceil(math.log2(growth / largest))) if growth > largest else 0
+    growth /= 2.0**halvings
+    bound = next(theta for theta in _ENERGY_GROWTHS if growth <= theta)
+    return generator, applied * scales, scales, halvings, bound
+
+
+def energy_projections(loop, forcings, applied, time_step: float) -> np.ndarray | None:
+    """Projections L_i (columns) with Q_i = L_i L_iᵀ = ∫₀ʰ e^{Fᵀτ} g_iᵀ g_i e^{Fτ} dτ.
+
+    The loop is z' = F z with F = [[loop, forcings], [0, 0]] (state z = [x; e], e the
+    constant states that carry the forcings) and the inputs are u = G z (``applied``).
+    Over one step started at z[k] the energy of input i is z[k]ᵀ Q_i z[k] =
+    ‖L_iᵀ z[k]‖²: summed over the steps, the exact input energy of a continuous loop.
+
+    With c_a = (τFᵀ)^a g_iᵀ (a few matrix-vector products), e^{Fᵀs} g_iᵀ = Σ_a (s/τ)^a c_a / a!,
+    so Q_i = τ C H Cᵀ with the fixed matrix H_ab = 1/((a+b+1) a! b!) and C = [c_0 … c_31]
+    (the series summed far below rounding while the powers of Fτ grow at most like 2^a,
+    see :func:`_power_growth`); H is factored once, L_i = √τ C R. Projecting the
+    states first and squaring afterwards keeps the rounding error proportional to
+    |u| ‖g‖ ‖z‖ rather than (‖g‖ ‖z‖)², where a large constant input nearly cancels the
+    feedback term. A longer step is cut into 2^k pieces (columns e^{Fᵀjτ} L_i for
+    j < 2^k). Past 2^4 pieces (a step far longer than the loop's time scales) the
+    answer is None and :func:`step_energies` weighs the states with
+    :func:`integral_of_quadratic` instead.
+
+    Parameters
+    ----------
+    loop : numpy.ndarray, shape (n, n)
+        Closed-loop state matrix (1/s).
+    forcings : numpy.ndarray, shape (n, r)
+        Constant forcing carried by each of the r constant states.
+    applied : numpy.ndarray, shape (m, n + r)
+        Rows g_i of the input map u = G z.
+    time_step : float
+        h in seconds.
+
+    Returns
+    -------
+    numpy.ndarray, shape (n + r, m, q), or None
+        L_i = result[:, i, :], in (input unit)·√s per state unit.
+    """
+    loop = np.asarray(loop, dtype=float)
+    forcings = np.asarray(forcings, dtype=float).reshape(loop.shape[0], -1)
+    applied = np.asarray(applied, dtype=float)
+    generator, rows, scales, halvings, bound = _energy_generator(loop, forcings, applied, time_step)
+    if halvings is None or halvings > _ENERGY_MOST_HALVINGS:
+        return None
+    d, m = generator.shape[0], rows.shape[0]
+    tau = time_step / 2.0**halvings
+    # Taylor vectors (τFᵀ)^a g_iᵀ of every input at once, block by block: columns a·m … a·m + m − 1
+    # of ``terms`` hold term a, and the terms 2^j … 2^{j+1} − 1 are (τFᵀ)^{2^j} times the first 2^j
+    terms = np.empty((d, _ENERGY_TERMS * m))
+    terms[:, :m] = rows.T
+    power = generator.T * tau
+    filled = 1
+    while filled < _ENERGY_TERMS:
+        take = min(filled, _ENERGY_TERMS - filled)
+        np.matmul(power, terms[:, : take * m], out=terms[:, filled * m : (filled + take) * m])
+        filled += take
+        if filled < _ENERGY_TERMS:
+            power = power @ power
+    factor = terms.reshape(d, _ENERGY_TERMS, m).transpose(0, 2, 1) @ _TAYLOR_PRODUCT_FACTORS[bound]  # (d, m, q)
+    factor *= math.sqrt(tau)
+    if halvings:
+        growth = matrix_exponential(generator * tau)
+        for _ in range(halvings):
+            factor = np.concatenate([factor, (growth.T @ factor.reshape(d, -1)).reshape(factor.shape)], axis=2)
+            growth = growth @ growth
+    return factor / scales[:, None, None]
+
+
+#: Rows projected at a time by :func:`projected_energies`: small enough that the scratch
+#: block stays in cache and never needs fresh pages from the operating system.
+_PROJECTION_ROWS = 512
+
+
+def projected_energies(points, projections: np.ndarray, steps: int | None = None) -> np.ndarray:
+    """Σₖ ‖L_iᵀ z[k]‖² over k < ``steps`` for each input i and each trajectory (see :func:`energy_projections`).
+
+    Parameters
+    ----------
+    points : numpy.ndarray, shape (N, R, d)
+        Augmented states of R trajectories side by side (as from :func:`propagate_many`);
+        the first ``steps`` of each start a step.
+    projections : numpy.ndarray, shape (d, m, q)
+    steps : int, optional
+        How many leading states of each trajectory count (default all N).
+
+    Returns
+    -------
+    numpy.ndarray, shape (R, m)
+        Energies in (input unit)²·s.
+    """
+    count, responses, d = points.shape
+    steps = count if steps is None else steps
+    m = projections.shape[1]
+    columns = projections.reshape(d, -1)
+    sums = np.zeros((responses, columns.shape[1]))
+    # a block of time steps at a time through one scratch block (no fresh pages for a long run)
+    span = max(1, _PROJECTION_ROWS // responses)
+    block = np.empty((min(steps, span) * responses, columns.shape[1]))
+    for low in range(0, steps, span):
+        high = min(low + span, steps)
+        rows = points[low:high].reshape(-1, d)
+        projected = np.matmul(rows, columns, out=block[: rows.shape[0]]).reshape(high - low, responses, -1)
+        sums += np.einsum("krj,krj->rj", projected, projected)
+    return sums.reshape(responses, m, -1).sum(axis=2)
+
+
+def step_energies(loop, forcings, applied, time_step: float, points) -> np.ndarray:
+    """Σₖ ∫₀ʰ u_i(t_k + τ)² dτ of every input over steps started at the rows of ``points``.
+
+    The loop is z' = F z with F = [[loop, forcings], [0, 0]] and u = G z (see
+    :func:`energy_projections`, which does the work); exact for a continuous loop.
+
+    Parameters
+    ----------
+    loop : numpy.ndarray, shape (n, n)
+        Closed-loop state matrix (1/s).
+    forcings : numpy.ndarray, shape (n, r)
+        Constant forcing carried by each of the r constant states.
+    applied : numpy.ndarray, shape (m, n + r)
+        Rows g_i of the input map u = G z.
+    time_step : float
+        h in seconds.
+    points : numpy.ndarray, shape (N, n + r)
+        Augmented states at the starts of the steps.
+
+    Returns
+    -------
+    numpy.ndarray, shape (m,)
+        Energies in (input unit)²·s.
+
+    Examples
+    --------
+    >>> # u = x with x' = −x from x = 1: ∫₀¹ e^{−2τ} dτ = (1 − e^{−2})/2
+    >>> energy = step_energies(np.array([[-1.0]]), np.zeros((1, 0)), np.array([[1.0]]), 1.0, np.array([[1.0]]))
+    >>> bool(abs(energy[0] - (1.0 - math.exp(-2.0)) / 2.0) < 1e-15)
+    True
+    """
+    loop = np.asarray(loop, dtype=float)
+    forcings = np.asarray(forcings, dtype=float).reshape(loop.shape[0], -1)
+    applied = np.asarray(applied, dtype=float)
+    points = np.asarray(points, dtype=float)
+    m = applied.shape[0]
+    if points.shape[0] == 0:
+        return np.zeros(m)
+    projections = energy_projections(loop, forcings, applied, time_step)
+    if projections is not None:
+        return projected_energies(points[:, None, :], projections)[0]
+    generator, rows, scales, halvings, _ = _energy_generator(loop, forcings, applied, time_step)
+    if halvings is None:
+        return np.full(m, np.nan)
+    # a step far longer than the loop's time scales: weights by block exponentials with doubling
+    generator_t = generator.T
+    weights = np.stack([integral_of_quadratic(generator_t, np.outer(row, row), time_step) for row in rows])
+    weights = weights / np.multiply.outer(scales, scales)
+    return np.einsum("ijk,jk->i", weights, points.T @ points)
+
+
 class SwitchingLoop:
     """A loop u = clip(−K x + u₀, low, high), simulated on a grid with the law checked at each point.
 
@@ -321,7 +567,10 @@ class SwitchingLoop:
     simulation is sampled at the response time step.
 
     Transition matrices of each pattern of pinned inputs are built on first use
-    and cached; a response usually visits two or three patterns.
+    and cached; a response usually visits two or three patterns. The forcing enters
+    a pattern's transition only through Ψ f (see below), so several loops of one
+    design (the responses, which differ only in u₀ and the outside forcing) can share
+    one ``transitions`` cache of (Φ, Ψ) per pattern.
 
     Parameters
     ----------
@@ -337,9 +586,12 @@ class SwitchingLoop:
         Grid spacing in seconds (the sample time for a sampled plant).
     sampled : bool
         Whether A, B are a sampled plant.
+    transitions : dict, optional
+        Cache of (Φ, Ψ) per pattern, x[k+1] = Φ x[k] + Ψ f for a constant forcing f,
+        to share between loops with the same A, B, K, limits and time step.
     """
 
-    def __init__(self, A, B, K, law_offset, forcing, low, high, time_step, sampled):
+    def __init__(self, A, B, K, law_offset, forcing, low, high, time_step, sampled, transitions=None):
         self.A, self.B, self.K = A, B, K
         self.law_offset = law_offset
         self.forcing = forcing
@@ -349,6 +601,8 @@ class SwitchingLoop:
         self._middle = 0.5 * (high + low)
         self._half = 0.5 * (high - low)
         self._steps: dict[tuple[int, ...], tuple[np.ndarray, np.ndarray, np.ndarray]] = {}
+        self._transitions = {} if transitions is None else transitions
+        self._powers: dict[tuple[int, ...], list[np.ndarray]] = {}
         self._law_rows = -np.asarray(K, dtype=float) / self._half[:, None]
         self._law_constant = (np.asarray(law_offset, dtype=float) - self._middle) / self._half
 
@@ -377,15 +631,42 @@ class SwitchingLoop:
         applied[~free, n] = pinned_value[~free]
         return generator, applied
 
+    def _transition(self, pattern: tuple[int, ...]) -> tuple[np.ndarray, np.ndarray]:
+        """(Φ, Ψ) of a pattern: x[k+1] = Φ x[k] + Ψ f over one step with the constant forcing f.
+
+        Continuous: Φ = e^{A_mode h}, Ψ = ∫₀ʰ e^{A_mode τ} dτ, both from one exponential
+        of [[A_mode, I], [0, 0]] h (Van Loan 1978). Sampled: Φ = A_mode, Ψ = I.
+        """
+        cached = self._transitions.get(pattern)
+        if cached is None:
+            n = self.A.shape[0]
+            free = np.array(pattern) == 0
+            loop = self.A - self.B[:, free] @ self.K[free]
+            if self.sampled:
+                cached = (loop, np.eye(n))
+            else:
+                block = np.zeros((2 * n, 2 * n))
+                block[:n, :n] = loop * self.time_step
+                block[:n, n:] = np.eye(n) * self.time_step
+                exponential = matrix_exponential(block)
+                cached = (exponential[:n, :n].copy(), exponential[:n, n:].copy())
+            self._transitions[pattern] = cached
+        return cached
+
     def _step_for(self, pattern: tuple[int, ...]):
         """(record matrix, record shift, augmented one-step map) of a pattern, built on first use."""
         cached = self._steps.get(pattern)
         if cached is not None:
             return cached
         n = self.A.shape[0]
-        generator, _ = self.mode_generator(pattern)
-        step = augmented_step(generator[:n, :n], generator[:n, n], self.time_step, self.sampled)
-        Phi, increment = step[:n, :n], step[:n, n]
+        # constant forcing of the pattern: u₀ on the free inputs, the limits on the pinned ones
+        held = np.where(np.array(pattern) > 0, self.high, np.where(np.array(pattern) < 0, self.low, self.law_offset))
+        Phi, integral = self._transition(pattern)
+        increment = integral @ (self.B @ held + self.forcing)
+        step = np.zeros((n + 1, n + 1))
+        step[:n, :n] = Phi
+        step[:n, n] = increment
+        step[n, n] = 1.0
         # Carry the scaled law w = (u_law − middle)/half along with x so that one
         # product per step gives both the next state and the next classification.
         law_rows, law_constant = self._law_rows, self._law_constant
@@ -433,7 +714,11 @@ class SwitchingLoop:
         record[0, :n] = start
         record[0, n:] = self._law_rows @ np.asarray(start, dtype=float) + self._law_constant
         k = 0
-        window = 4 * self._SHORTEST_SEGMENT
+        # A stretch is tried over at least as many steps as cost about as much as a few numpy
+        # calls (all of them for a small loop): a stretch that ends early costs the rows
+        # computed past its end, a short window costs a restart.
+        cheap = max(4 * self._SHORTEST_SEGMENT, 120_000 // (n + 1) ** 2)
+        window = cheap
         with np.errstate(over="ignore", invalid="ignore"):
             while k < count - 1:
                 length = min(window, count - 1 - k)
@@ -443,7 +728,7 @@ class SwitchingLoop:
                 taken = self._run_segment(record, k, length)
                 k += taken
                 if taken < length:  # the pattern changed inside the stretch
-                    window = max(4 * self._SHORTEST_SEGMENT, 2 * taken)
+                    window = max(cheap, 2 * taken)
                     if taken < 4 and k < count - 1:
                         k = self._run_stepwise(record, k, min(self._STEPWISE_RUN, count - 1 - k))
                 else:
@@ -458,15 +743,31 @@ class SwitchingLoop:
         n = self.A.shape[0]
         current = record[k]
         pattern = self._classify(current[n:])
-        _, _, step = self._step_for(tuple(pattern.tolist()))
-        start = np.empty(n + 1)
-        start[:n] = current[:n]
-        start[n] = 1.0
-        block = propagate_many(step, start[None, :], length + 1)[1:, 0, :n]
+        key = tuple(pattern.tolist())
+        _, _, step = self._step_for(key)
+        # repeated doubling as in propagate_many, with the powers of the step kept per pattern
+        powers = self._powers.setdefault(key, [step])
+        states = np.empty((length + 1, n + 1))
+        states[0, :n] = current[:n]
+        states[0, n] = 1.0
+        filled, level = 1, 0
+        while filled <= length:
+            take = min(filled, length + 1 - filled)
+            if level == len(powers):
+                powers.append(powers[-1] @ powers[-1])
+            np.matmul(states[:take], powers[level].T, out=states[filled : filled + take])
+            filled += take
+            level += 1
+        block = states[1:, :n]
         scaled = block @ self._law_rows.T + self._law_constant
         # rows stay valid up to and including the first one whose classification differs
-        differs = np.any(self._classify(scaled) != pattern, axis=1)
-        taken = int(differs.argmax()) + 1 if differs.any() else length
+        if len(key) == 1:
+            w = scaled[:, 0]
+            differs = (w > 1.0) | (w < -1.0) if key[0] == 0 else ~(w > 1.0) if key[0] > 0 else ~(w < -1.0)
+        else:
+            differs = np.any(self._classify(scaled) != pattern, axis=1)
+        first_change = int(differs.argmax())
+        taken = first_change + 1 if differs[first_change] else length
         record[k + 1 : k + 1 + taken, :n] = block[:taken]
         record[k + 1 : k + 1 + taken, n:] = scaled[:taken]
         return taken

@@ -13,8 +13,11 @@ the design asks of the actuators) and for the loop with the inputs clipped to th
 limits (what a real actuator would deliver).
 
 Continuous plants are propagated exactly at the grid points through zero-order-hold
-transition matrices of the closed loop (one matrix exponential per response, no ODE
-solver); sampled plants are propagated sample by sample with their own matrices.
+transition matrices of the closed loop (one matrix exponential serves all three
+responses, no ODE solver); sampled plants are propagated sample by sample with their
+own matrices. The responses share their grid, so their inputs, outputs, slopes and
+metrics are computed together, a few numpy calls for all of them (this runs on every
+slider move).
 
 These are predictions of a linear model. A design must be validated on the real
 system with safe limits and emergency stops, following local codes,
@@ -26,7 +29,8 @@ from __future__ import annotations
 from functools import partial
 import cmath
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
+from typing import NamedTuple
 
 import numpy as np
 
@@ -36,12 +40,19 @@ from ._metrics import (
     InputMetrics,
     LimitViolation,
     OutputMetrics,
+    _measure_input_rows,
+    _measure_output_rows,
     find_limit_violation,
-    measure_input,
-    measure_output,
 )
 from ._plant import Plant
-from ._propagation import SwitchingLoop, integral_of_quadratic, matrix_exponential, propagate_many
+from ._propagation import (
+    SwitchingLoop,
+    energy_projections,
+    matrix_exponential,
+    projected_energies,
+    propagate_many,
+    step_energies,
+)
 
 __all__ = [
     "Response",
@@ -54,6 +65,7 @@ __all__ = [
 ]
 
 NAN = float("nan")
+_EPS = float(np.finfo(float).eps)
 
 #: Most grid points chosen automatically (the app redraws these on every slider move).
 AUTOMATIC_POINT_LIMIT = 2000
@@ -208,13 +220,14 @@ def _pole_list_text(poles, sampled: bool) -> str:
 def _stability_tolerance(loop: np.ndarray, sampled: bool) -> float:
     """Rounding level of the closed-loop eigenvalues (in 1/s, or in |z| when sampled)."""
     n = loop.shape[0]
-    size = np.linalg.norm(loop, 1)
-    return 100.0 * n * np.finfo(float).eps * (max(size, 1.0) if sampled else size)
+    size = float(np.abs(loop).sum(axis=0).max()) if n else 0.0  # ‖loop‖₁
+    return 100.0 * n * _EPS * (max(size, 1.0) if sampled else size)
 
 
-def _classify_poles(poles, loop, sampled):
+def _classify_poles(poles, loop, sampled, tolerance=None):
     """(unstable poles, poles on the stability boundary) of the closed loop."""
-    tolerance = _stability_tolerance(loop, sampled)
+    if tolerance is None:
+        tolerance = _stability_tolerance(loop, sampled)
     if sampled:
         distance = np.abs(poles) - 1.0
     else:
@@ -230,8 +243,10 @@ def _equivalent_continuous(poles, sample_time):
     return np.array([cmath.log(complex(z)) / sample_time for z in nonzero], dtype=complex)
 
 
-def _choose_grid(poles, loop, sampled, sample_time, horizon, time_step):
-    """Horizon (s), time step (s) and number of grid points."""
+def _choose_grid(poles, loop, sampled, sample_time, horizon, time_step, tolerance=None):
+    """Horizon (s), time step (s) and number of grid points (``tolerance``: the stability tolerance)."""
+    if tolerance is None:
+        tolerance = _stability_tolerance(loop, sampled)
     if sampled:
         if time_step is not None and not math.isclose(time_step, sample_time, rel_tol=1e-9):
             raise AnalysisError(
@@ -239,24 +254,24 @@ def _choose_grid(poles, loop, sampled, sample_time, horizon, time_step):
                 f"the time step {time_step:g} s cannot be used (leave it unset)"
             )
         rates = _equivalent_continuous(poles, sample_time)
-        tolerance = _stability_tolerance(loop, True) / sample_time
+        tolerance = tolerance / sample_time
     else:
         rates = np.asarray(poles, dtype=complex)
-        tolerance = _stability_tolerance(loop, False)
 
     if horizon is None:
-        decaying = np.abs(rates.real) > tolerance
+        real, imaginary = rates.real.tolist(), rates.imag.tolist()
+        decay_rates = [abs(value) for value in real if abs(value) > tolerance]
         length = 0.0
-        if np.any(decaying):
-            length = HORIZON_TIME_CONSTANTS / float(np.min(np.abs(rates.real[decaying])))
-        ringing = (~decaying) & (np.abs(rates.imag) > tolerance)
-        if np.any(ringing):  # undamped oscillation: show three periods of the slowest
-            length = max(length, 3.0 * 2.0 * math.pi / float(np.min(np.abs(rates.imag[ringing]))))
+        if decay_rates:
+            length = HORIZON_TIME_CONSTANTS / min(decay_rates)
+        ringing = [abs(w) for value, w in zip(real, imaginary) if abs(value) <= tolerance and abs(w) > tolerance]
+        if ringing:  # undamped oscillation: show three periods of the slowest
+            length = max(length, 3.0 * 2.0 * math.pi / min(ringing))
         if length == 0.0:
             length = 20.0 * sample_time if sampled else 10.0
-        growth = rates.real[rates.real > tolerance]
-        if growth.size:  # enough to watch an unstable loop blow up, no more
-            length = min(length, 2.0 * math.log(BLOW_UP_FACTOR) / float(np.max(growth)))
+        growth = [value for value in real if value > tolerance]
+        if growth:  # enough to watch an unstable loop blow up, no more
+            length = min(length, 2.0 * math.log(BLOW_UP_FACTOR) / max(growth))
         if sampled:
             length = max(length, 20.0 * sample_time)
         automatic_horizon = True
@@ -298,16 +313,40 @@ def _positive_number(value, what: str) -> float:
     return float(value)
 
 
-def _steady_state_gain(plant: Plant, K: np.ndarray):
+def _condition_number(matrix: np.ndarray) -> float:
+    """2-norm condition number σ_max/σ_min (inf when singular), as numpy.linalg.cond."""
+    singular_values = np.linalg.svd(matrix, compute_uv=False)
+    largest, smallest = float(singular_values[0]), float(singular_values[-1])
+    return largest / smallest if smallest != 0.0 else math.inf
+
+
+def _frobenius(matrix: np.ndarray) -> float:
+    return float(np.sqrt(np.sum(matrix * matrix)))
+
+
+def _steady_state_gain(plant: Plant, K: np.ndarray, loop: np.ndarray | None = None):
     """Steady-state gain from a constant u₀ (added to −Kx) to the tracked outputs, and its pieces."""
     A, B, C, D = plant.A, plant.B, plant.C, plant.D
     n = plant.state_count
-    loop = A - B @ K
+    if loop is None:
+        loop = A - B @ K
     sampled = plant.is_sampled
     # equilibrium: 0 = loop x + B u0 (continuous) or x = loop x + B u0 (sampled)
     system = (np.eye(n) - loop) if sampled else -loop
-    condition = np.linalg.cond(system)
-    if not math.isfinite(condition) or condition * n * np.finfo(float).eps * 100.0 >= 1.0:
+    # The loop is refused when cond₂(M)·n·eps·100 ≥ 1. cond₂(M) ≤ ‖M‖_F ‖M⁻¹‖_F (with a margin for
+    # their rounding), and an inverse costs less than the singular values, so a bound below the
+    # limit settles it; the exact condition number is only needed near the limit.
+    condition = NAN
+    bound = math.inf
+    if n >= 16:  # below that the singular values cost no more than the inverse
+        try:
+            with np.errstate(all="ignore"):
+                bound = _frobenius(system) * _frobenius(np.linalg.inv(system)) * (1.0 + 1e-12)
+        except np.linalg.LinAlgError:
+            pass
+    if not bound * n * _EPS * 100.0 < 1.0:  # also when the bound is not finite
+        condition = _condition_number(system)
+    if condition * n * _EPS * 100.0 >= 1.0 or math.isinf(condition):
         poles = np.linalg.eigvals(loop)
         target = 1.0 if sampled else 0.0
         closest = complex(poles[np.argmin(np.abs(poles - target))])
@@ -319,8 +358,9 @@ def _steady_state_gain(plant: Plant, K: np.ndarray):
         )
     to_state = np.linalg.solve(system, B)
     tracked = list(plant.tracked_outputs)
-    output_of_state = (C - D @ K)[tracked]
-    gain = output_of_state @ to_state + D[tracked]
+    tracked_feedthrough = D[tracked]
+    output_of_state = C[tracked] - tracked_feedthrough @ K
+    gain = output_of_state @ to_state + tracked_feedthrough
     return gain, output_of_state, to_state, condition
 
 
@@ -328,19 +368,28 @@ def _spectral_norm(matrix: np.ndarray) -> float:
     """‖M‖₂; for a single row or column that is its Euclidean length (no SVD needed)."""
     if min(matrix.shape) <= 1:
         return float(np.sqrt(np.sum(matrix * matrix)))
-    return float(np.linalg.norm(matrix, 2))
+    return float(np.linalg.svd(matrix, compute_uv=False)[0])
 
 
-def _prefilter_with_condition(plant: Plant, K: np.ndarray):
+def _prefilter_with_condition(plant: Plant, K: np.ndarray, loop: np.ndarray | None = None):
     """(N, condition number of the steady-state gain, (I − A + BK)⁻¹B or −(A − BK)⁻¹B)."""
-    gain, output_of_state, to_state, _ = _steady_state_gain(plant, K)
+    gain, output_of_state, to_state, _ = _steady_state_gain(plant, K, loop)
     q, m = gain.shape
-    singular_values = np.linalg.svd(gain, compute_uv=False)
-    natural_size = _spectral_norm(output_of_state) * _spectral_norm(to_state) + _spectral_norm(
-        plant.D[list(plant.tracked_outputs)]
-    )
-    tolerance = 1e3 * max(q, m) * np.finfo(float).eps * natural_size
-    if singular_values[-1] <= tolerance:
+    if q == m == 1:  # one input, one tracked output: σ = |M| (what the SVD returns for 1×1)
+        singular_values = np.abs(gain[0])
+    else:
+        singular_values = np.linalg.svd(gain, compute_uv=False)
+    feedthrough = plant.D[list(plant.tracked_outputs)]
+    # ‖·‖_F ≥ ‖·‖₂ (with a margin for their rounding), so a gain clear of the tolerance built
+    # from Frobenius norms is clear of the exact one too; the spectral norms (an SVD each)
+    # are only needed near the boundary.
+    frobenius = [_frobenius(matrix) for matrix in (output_of_state, to_state, feedthrough)]
+    bound = (frobenius[0] * frobenius[1] + frobenius[2]) * (1.0 + 1e-12)
+    clear = singular_values[-1] > 1e3 * max(q, m) * _EPS * bound
+    natural_size = NAN
+    if not clear:
+        natural_size = _spectral_norm(output_of_state) * _spectral_norm(to_state) + _spectral_norm(feedthrough)
+    if not clear and singular_values[-1] <= 1e3 * max(q, m) * _EPS * natural_size:
         names = ", ".join(plant.output_names[i] for i in plant.tracked_outputs)
         where = "z = 1" if plant.is_sampled else "s = 0"
         raise AnalysisError(
@@ -349,8 +398,10 @@ def _prefilter_with_condition(plant: Plant, K: np.ndarray):
             f"the loop has a zero at {where} on that path, or the tracked outputs cannot be set independently, "
             "so no constant prefilter reaches the reference; track other outputs or add integral action"
         )
-    if q == m:
-        prefilter = np.linalg.solve(gain, np.eye(q))
+    if q == m == 1:
+        prefilter = 1.0 / gain  # the LU solve of a 1×1 system is this one division
+    elif q == m:
+        prefilter = np.linalg.inv(gain)
     else:
         # fewer tracked outputs than inputs: the smallest prefilter (minimum norm) that
         # gives gain @ N = I, i.e. the pseudo-inverse of a full-row-rank gain
@@ -414,13 +465,23 @@ class _Context:
     diverging_reason: str
     band: float
 
+    #: (Φ, Ψ) per pattern of pinned inputs, shared by the clipped loops of the responses
+    transitions: dict = field(default_factory=dict)
+
+    def switching_loop(self, law_offset, outside_forcing, low, high) -> SwitchingLoop:
+        """The clipped loop of one response (u₀ and the outside forcing are the response's own)."""
+        plant = self.plant
+        return SwitchingLoop(plant.A, plant.B, self.K, law_offset, outside_forcing, low, high, self.time_step,
+                             self.sampled, self.transitions)
+
 
 def _blow_up_index(states: np.ndarray, threshold: float):
     """First row whose largest |entry| passes ``threshold`` (or is not finite); None if none."""
     if threshold <= 0.0:
         return None
     with np.errstate(invalid="ignore"):
-        if np.abs(states).max(initial=0.0) <= threshold:  # the usual case: nothing to cut
+        # the usual case, nothing to cut, read from the extremes (no |states| temporary)
+        if states.size == 0 or (states.max() <= threshold and states.min() >= -threshold):
             return None
         size = np.max(np.abs(states), axis=1)
     bad = ~(size <= threshold)
@@ -429,15 +490,23 @@ def _blow_up_index(states: np.ndarray, threshold: float):
     return int(np.argmax(bad))
 
 
-def _natural_size(ctx: _Context, start, forcing, equilibrium) -> float:
-    """Size a response should stay well within: its start, its equilibrium, its forcing."""
-    size = float(np.max(np.abs(start)))
-    if np.any(forcing != 0.0):
-        if np.all(np.isfinite(equilibrium)):
-            size = max(size, float(np.max(np.abs(equilibrium))))
-        steps = ctx.count - 1
-        size = max(size, float(np.max(np.abs(forcing))) * (steps if ctx.sampled else steps * ctx.time_step))
-    return size
+def _natural_sizes(ctx: _Context, plans, forcings: np.ndarray, equilibria: np.ndarray) -> list[float]:
+    """Size each response should stay well within: its start, its equilibrium, its forcing."""
+    start_sizes = np.abs(np.array([plan.start for plan in plans])).max(axis=1).tolist()
+    forcing_sizes = np.abs(forcings).max(axis=1).tolist()
+    with np.errstate(invalid="ignore"):
+        equilibrium_sizes = np.abs(equilibria).max(axis=1).tolist()  # nan where the state ramps
+    steps = ctx.count - 1
+    span = steps if ctx.sampled else steps * ctx.time_step
+    sizes = []
+    for start_size, forcing_size, equilibrium_size in zip(start_sizes, forcing_sizes, equilibrium_sizes):
+        size = start_size
+        if forcing_size != 0.0:
+            if math.isfinite(equilibrium_size):
+                size = max(size, equilibrium_size)
+            size = max(size, forcing_size * span)
+        sizes.append(size)
+    return sizes
 
 
 def _equilibria(ctx: _Context, forcings: np.ndarray) -> np.ndarray:
@@ -448,8 +517,8 @@ def _equilibria(ctx: _Context, forcings: np.ndarray) -> np.ndarray:
     the zero equilibrium.
     """
     equilibria = np.zeros_like(forcings)
-    forced = np.flatnonzero(np.any(forcings != 0.0, axis=1))
-    if forced.size:
+    forced = [r for r, row in enumerate(forcings.tolist()) if any(value != 0.0 for value in row)]
+    if forced:
         n = ctx.loop.shape[0]
         system = (np.eye(n) - ctx.loop) if ctx.sampled else -ctx.loop
         try:
@@ -460,40 +529,38 @@ def _equilibria(ctx: _Context, forcings: np.ndarray) -> np.ndarray:
     return equilibria
 
 
-class _Energies:
-    """∫u² dt of every input over the first grid points of a response (exact for continuous loops).
+class _Plan(NamedTuple):
+    """What one response simulates: its start, its constant forcing and what it is measured against."""
 
-    All responses of one design share the augmented generator F = [[A − BK, f₁ … f_r], [0, 0]]
-    (state z = [x; e_r] for response r) and the applied input u = G z with
-    G = [−K, u₀₁ … u₀_r]. Over one step the energy of input i is z[k]ᵀ Q_i z[k] with
-    Q_i = ∫₀ʰ e^{Fᵀτ} g_iᵀ g_i e^{Fτ} dτ, so a response's energy is
-    trace(Q_i Σₖ z[k] z[k]ᵀ): one block exponential per input serves all responses.
-    Sampled loops hold u over each period: T Σ u[k]².
-    """
+    kind: str
+    start: np.ndarray  # x0, shape (n,)
+    law_offset: np.ndarray  # u₀ of u = −Kx + u₀, shape (m,)
+    outside_forcing: np.ndarray  # forcing outside the inputs (E d), shape (n,)
+    targets: np.ndarray  # shape (p,)
+    target_reasons: tuple[str, ...]
+    description: str
 
-    def __init__(self, ctx: _Context, generator: np.ndarray, applied: np.ndarray):
-        self.ctx = ctx
-        self.generator = generator
-        self.applied = applied
-        self._weights = None
 
-    def _quadratic_weights(self) -> np.ndarray:
-        if self._weights is None:
-            generator_t = self.generator.T
-            self._weights = np.stack([
-                integral_of_quadratic(generator_t, np.outer(row, row), self.ctx.time_step) for row in self.applied
-            ])
-        return self._weights
+@dataclass(eq=False)
+class _Piece:
+    """The linear part of one response while it is being assembled (metrics filled in later)."""
 
-    def of(self, trajectory: np.ndarray, inputs: np.ndarray, valid: int) -> np.ndarray:
-        """Energies (m,) from the augmented trajectory (count, d) and inputs (count, m)."""
-        if valid < 2:
-            return np.zeros(inputs.shape[1])
-        if self.ctx.sampled:
-            return self.ctx.time_step * np.sum(inputs[: valid - 1] ** 2, axis=0)
-        points = trajectory[: valid - 1]
-        weight = points.T @ points
-        return np.einsum("ijk,jk->i", self._quadratic_weights(), weight)
+    plan: _Plan
+    index: int  # which of the responses sharing the trajectories
+    diverged_at: float | None
+    threshold: float  # blow-up threshold of the state
+    projections: np.ndarray | None  # energy projections of the shared loop (continuous)
+    time: np.ndarray
+    states: np.ndarray
+    inputs: np.ndarray  # (N, m)
+    outputs: np.ndarray  # (N, p)
+    input_rows: np.ndarray  # (m, N), the same values as signal rows
+    input_slopes: np.ndarray | None  # (m, N), continuous loops
+    starts: np.ndarray
+    finals: np.ndarray
+    final_reason: str
+    output_metrics: tuple = ()
+    input_metrics: tuple = ()
 
 
 def _nan_metrics(plant: Plant, reason: str):
@@ -511,9 +578,19 @@ def _nan_metrics(plant: Plant, reason: str):
     return outputs, inputs
 
 
-def _measure_all(ctx, kind, time, outputs, output_slopes, starts, finals, targets, final_reason, final_note,
-                 target_reasons):
-    plant = ctx.plant
+def _frozen_columns(rows: np.ndarray) -> np.ndarray:
+    """A read-only (N, c) view of signal rows (c, N) (no copy: the rows are never written again)."""
+    columns = rows.T
+    columns.flags.writeable = False
+    return columns
+
+
+def _noise_floor(outputs: np.ndarray, finals: np.ndarray) -> float:
+    """Excursions at or below this size count as "the output does not move" (10⁻¹⁰ of the largest value).
+
+    ``outputs`` is (N, p), one row per grid point; only grid points where every
+    output is finite count.
+    """
     if np.isfinite(outputs).all():
         largest = float(np.abs(outputs).max()) if outputs.size else 0.0
     else:
@@ -521,141 +598,296 @@ def _measure_all(ctx, kind, time, outputs, output_slopes, starts, finals, target
         largest = float(np.max(np.abs(finite_outputs))) if finite_outputs.size else 0.0
     if np.any(np.isfinite(finals)):
         largest = max(largest, float(np.nanmax(np.abs(finals))))
-    noise_floor = 1e-10 * largest
-    return tuple(
-        measure_output(
-            time,
-            outputs[:, i],
-            None if output_slopes is None else output_slopes[:, i],
-            kind=kind,
-            start=float(starts[i]),
-            final=float(finals[i]),
-            target=float(targets[i]),
-            band=ctx.band,
-            index=i,
-            name=name,
-            noise_floor=noise_floor,
-            final_reason=final_reason,
-            final_note=final_note,
-            target_reason=target_reasons[i],
-            at_samples=ctx.sampled,
-        )
-        for i, name in enumerate(plant.output_names)
+    return 1e-10 * largest
+
+
+def _measure_outputs(ctx: _Context, time, rows: np.ndarray, slopes, batch) -> list[tuple[OutputMetrics, ...]]:
+    """Output metrics of several responses at once.
+
+    ``rows`` (p·R, N) holds output i of response r in row i·R + r (R = len(batch)),
+    ``slopes`` the same layout or None; ``batch`` has one tuple per response: (kind,
+    starts, finals, targets, final reason, final note, target reasons). The grid passes
+    run once for all rows.
+    """
+    plant = ctx.plant
+    p, responses = plant.output_count, len(batch)
+    if not batch:
+        return []
+    # noise floor of each response from the largest |y| of its rows (all finite here)
+    highest, lowest = rows.max(axis=1).tolist(), rows.min(axis=1).tolist()
+    floors = []
+    for r, entry in enumerate(batch):
+        members = range(r, p * responses, responses)
+        largest = max((max(highest[j], -lowest[j]) for j in members), default=0.0)
+        finals = [float(value) for value in entry[2]]
+        if not math.isfinite(largest):  # not expected: fall back on the grid-point rule
+            floors.append(_noise_floor(rows[r::responses].T, np.asarray(finals)))
+            continue
+        finite_finals = [abs(value) for value in finals if math.isfinite(value)]
+        if finite_finals:
+            largest = max(largest, max(finite_finals))
+        floors.append(1e-10 * largest)
+    order = [(i, r) for i in range(p) for r in range(responses)]
+    metrics = _measure_output_rows(
+        time, rows, slopes,
+        regulation=[batch[r][0] != "step" for i, r in order],
+        starts=[batch[r][1][i] for i, r in order],
+        finals=[batch[r][2][i] for i, r in order],
+        targets=[batch[r][3][i] for i, r in order],
+        band=ctx.band,
+        noise_floors=[floors[r] for i, r in order],
+        indices=[i for i, r in order],
+        names=[plant.output_names[i] for i, r in order],
+        final_reasons=[batch[r][4] for i, r in order],
+        final_notes=[batch[r][5] for i, r in order],
+        target_reasons=[batch[r][6][i] for i, r in order],
+        at_samples=ctx.sampled,
+        extremes=(highest, lowest),
     )
+    return [tuple(metrics[i * responses + r] for i in range(p)) for r in range(responses)]
 
 
-def _simulate_one(ctx: _Context, kind: str, trajectory, energies: _Energies, start, law_offset, outside_forcing,
-                  forcing, equilibrium, targets, target_reasons, description):
-    plant, K, loop = ctx.plant, ctx.K, ctx.loop
+def _measure_inputs(ctx: _Context, time, rows: np.ndarray, slopes, energies) -> list[tuple[InputMetrics, ...]]:
+    """Input metrics (peak |u| and the given energies (R, m)) of R responses; rows as in :func:`_measure_outputs`."""
+    plant = ctx.plant
+    m, responses = plant.input_count, len(energies)
+    if not responses:
+        return []
+    order = [(i, r) for i in range(m) for r in range(responses)]
+    metrics = _measure_input_rows(time, rows, slopes, energies=[float(energies[r][i]) for i, r in order],
+                                  indices=[i for i, r in order], names=[plant.input_names[i] for i, r in order],
+                                  energy_reasons=[""] * len(order), at_samples=ctx.sampled)
+    return [tuple(metrics[i * responses + r] for i in range(m)) for r in range(responses)]
+
+
+def _linear_responses(ctx: _Context, plans: list[_Plan], trajectories: np.ndarray, forcings: np.ndarray,
+                      equilibria: np.ndarray, applied: np.ndarray) -> list[_Piece]:
+    """The linear part of every response: arrays cut at a blow-up, metrics, energies.
+
+    ``trajectories`` (N, R, d) holds the augmented state z = [x; e] of every response.
+    All responses share the grid and the maps from z, so one product per response gives
+    every input, output and their exact slopes (continuous loops), and the squares of
+    the energy projections (:func:`energy_projections`) sum to every input energy; the
+    passes of the metrics then run once for all responses. Signals are handled as rows
+    (signal, time), the layout in which numpy reduces along the grid fastest.
+    """
+    plant, K = ctx.plant, ctx.K
     C, D = plant.C, plant.D
-    n = plant.state_count
-    states = trajectory[:, :n]
+    n, m, p = plant.state_count, plant.input_count, plant.output_count
+    count = ctx.count
+    _, responses, d = trajectories.shape
 
-    threshold = BLOW_UP_FACTOR * _natural_size(ctx, start, forcing, equilibrium)
-    diverged_at = None
-    cut = _blow_up_index(states, threshold)
-    if cut is not None:
-        keep = cut + 1 if np.all(np.isfinite(states[cut])) else max(cut, 2)
-        states = states[:keep]
-        trajectory = trajectory[:keep]
-        diverged_at = float(cut * ctx.time_step)
-    states = np.ascontiguousarray(states)
-    count = states.shape[0]
-    time = ctx.time_step * np.arange(count)
-
-    inputs = law_offset - states @ K.T
-    outputs = states @ C.T + inputs @ D.T
-    if ctx.sampled:
-        output_slopes = input_slopes = None
-    else:
-        # x' = loop x + f, so y' = (C − DK) x' and u' = −K x': one product with the (p + m)×n
-        # maps (C − DK)·loop and −K·loop instead of forming x' (count × n) first
+    # maps from z: u = G z (G = [−K, u₀₁ … u₀_R]), y = C x + D u, and for a continuous loop
+    # y' = (C − DK) x', u' = −K x' with x' = [loop, f₁ … f_R] z
+    output_map = D @ applied
+    output_map[:, :n] += C
+    maps = [applied, output_map]
+    projections = None
+    if not ctx.sampled:
         slope_maps = np.vstack([C - D @ K, -K])
-        slopes = states @ (slope_maps @ loop).T + slope_maps @ forcing
-        output_slopes, input_slopes = slopes[:, : plant.output_count], slopes[:, plant.output_count :]
+        maps.append(slope_maps @ np.hstack([ctx.loop, forcings.T]))
+        projections = energy_projections(ctx.loop, forcings.T, applied, ctx.time_step)
+    # A short trajectory takes the energy projections along in the same product; a long one
+    # projects block by block (projected_energies), so no large scratch array is needed.
+    fused = projections is not None and count * responses * (sum(map(len, maps)) + projections[0].size) <= 1 << 16
+    if fused:
+        maps.append(projections.reshape(d, -1).T)
+    stacked = np.vstack(maps)
+    products = np.empty((stacked.shape[0], responses, count))
+    with np.errstate(over="ignore", invalid="ignore"):
+        for r in range(responses):  # written straight into rows (signal, time) of each response
+            np.matmul(stacked, trajectories[:, r, :].T, out=products[:, r, :])
+    inputs_rows, outputs_rows = products[:m], products[m : m + p]
+    slopes_rows = None if ctx.sampled else products[m + p : m + 2 * p + m]
+    trajectories.flags.writeable = False
+    time_full = ctx.time_step * np.arange(count)
+    time_full.flags.writeable = False
 
-    # exact steady state of the linear loop
-    starts = (outputs[0] if kind == "initial" else np.zeros(plant.output_count))
-    final_reason = ""
-    if not ctx.stable:
-        finals = np.full(plant.output_count, NAN)
-        final_reason = ctx.no_steady_state_reason
-    elif np.any(forcing != 0.0):
-        finals = C @ equilibrium + D @ (law_offset - K @ equilibrium)
-    else:
-        finals = np.zeros(plant.output_count)
+    thresholds = [BLOW_UP_FACTOR * size for size in _natural_sizes(ctx, plans, forcings, equilibria)]
+    # The usual case, no response near its blow-up threshold, read from the extremes of all the
+    # (contiguous) trajectories at once; their constant states are 0 or 1, so thresholds of at
+    # least 1 are not disturbed by them. Otherwise each response's states are searched.
+    lowest_threshold = min(thresholds)
+    with np.errstate(invalid="ignore"):
+        all_clear = (lowest_threshold >= 1.0 and float(trajectories.max()) <= lowest_threshold
+                     and float(trajectories.min()) >= -lowest_threshold)
+    pieces = []
+    for r, plan in enumerate(plans):
+        states = trajectories[:, r, :n]
+        threshold = thresholds[r]
+        cut = None if all_clear else _blow_up_index(states, threshold)
+        diverged_at = None
+        keep = count
+        if cut is not None:
+            keep = cut + 1 if np.all(np.isfinite(states[cut])) else max(cut, 2)
+            diverged_at = float(cut * ctx.time_step)
+        outputs = _frozen_columns(outputs_rows[:, r, :keep])
+        # exact steady state of the linear loop
+        final_reason = ""
+        if not ctx.stable:
+            finals = np.full(p, NAN)
+            final_reason = ctx.no_steady_state_reason
+        elif np.any(forcings[r] != 0.0):
+            equilibrium = equilibria[r]
+            finals = C @ equilibrium + D @ (plan.law_offset - K @ equilibrium)
+        else:
+            finals = np.zeros(p)
+        pieces.append(_Piece(
+            plan=plan, index=r, diverged_at=diverged_at, threshold=threshold, projections=projections,
+            time=time_full if keep == count else time_full[:keep],
+            states=states if keep == count else states[:keep],
+            inputs=_frozen_columns(inputs_rows[:, r, :keep]),
+            outputs=outputs,
+            input_rows=inputs_rows[:, r, :keep],
+            input_slopes=None if slopes_rows is None else slopes_rows[p:, r, :keep],
+            starts=outputs[0] if plan.kind == "initial" else np.zeros(p),
+            finals=finals, final_reason=final_reason,
+        ))
 
-    if diverged_at is not None:
-        output_metrics, input_metrics = _nan_metrics(plant, ctx.diverging_reason or "the response blows up")
-    else:
-        output_metrics = _measure_all(ctx, kind, time, outputs, output_slopes, starts, finals, targets,
-                                      final_reason, "", target_reasons)
-        energy = energies.of(trajectory, inputs, count)
-        input_metrics = tuple(
-            measure_input(time, inputs[:, i], None if input_slopes is None else input_slopes[:, i],
-                          energy=float(energy[i]), index=i, name=name, at_samples=ctx.sampled)
-            for i, name in enumerate(plant.input_names)
+    measured = [r for r, piece in enumerate(pieces) if piece.diverged_at is None]
+    if measured:
+        every = len(measured) == responses
+        chosen = products if every else products[:, measured]
+        used = len(measured)
+        output_slopes = input_slopes = None
+        if slopes_rows is not None:
+            output_slopes = chosen[m + p : m + 2 * p].reshape(p * used, count)
+            input_slopes = chosen[m + 2 * p : 2 * m + 2 * p].reshape(m * used, count)
+        output_metrics = _measure_outputs(ctx, time_full, chosen[m : m + p].reshape(p * used, count),
+                                          output_slopes, [
+            (plans[r].kind, pieces[r].starts, pieces[r].finals, plans[r].targets, pieces[r].final_reason,
+             "", plans[r].target_reasons)
+            for r in measured
+        ])
+        # ∫u² dt over the whole grid: exact for a continuous loop (sum over the steps of the
+        # squared projections); a sampled loop holds u over each period: T Σ u[k]²
+        if count < 2:
+            energies = np.zeros((used, m))
+        elif ctx.sampled:
+            held = chosen[:m, :, : count - 1]
+            energies = ctx.time_step * np.einsum("irk,irk->ri", held, held)
+        else:
+            if fused:
+                projected = chosen[2 * m + 2 * p :, :, : count - 1]
+                energies = np.einsum("jrk,jrk->rj", projected, projected).reshape(used, m, -1).sum(axis=2)
+            elif projections is not None:
+                energies = projected_energies(trajectories if every else trajectories[:, measured], projections,
+                                              count - 1)
+            else:
+                energies = np.array([step_energies(ctx.loop, forcings.T, applied, ctx.time_step,
+                                                   trajectories[: count - 1, r]) for r in measured])
+        input_metrics = _measure_inputs(ctx, time_full, chosen[:m].reshape(m * used, count), input_slopes,
+                                        energies)
+        for j, r in enumerate(measured):
+            pieces[r].output_metrics, pieces[r].input_metrics = output_metrics[j], input_metrics[j]
+    for piece in pieces:
+        if piece.diverged_at is not None:
+            piece.output_metrics, piece.input_metrics = _nan_metrics(
+                plant, ctx.diverging_reason or "the response blows up")
+    return pieces
+
+
+def _response(ctx: _Context, piece: _Piece, violations: tuple, saturated: dict | None) -> Response:
+    """The Response of one linear piece, with its saturated counterpart when the plant has limits."""
+    plan = piece.plan
+    if saturated is None:
+        saturated = dict(
+            saturated_states=None,
+            saturated_outputs=None,
+            saturated_inputs=None,
+            saturated_output_metrics=None,
+            saturated_input_metrics=None,
+            saturated_diverged_at=None,
         )
-
-    saturated = dict(
-        saturated_states=None,
-        saturated_outputs=None,
-        saturated_inputs=None,
-        saturated_output_metrics=None,
-        saturated_input_metrics=None,
-        saturated_diverged_at=None,
-    )
-    violations: tuple[LimitViolation, ...] = ()
-    if plant.input_limits is not None:
-        low = np.array([pair[0] for pair in plant.input_limits])
-        high = np.array([pair[1] for pair in plant.input_limits])
-        violations = tuple(
-            find_limit_violation(time, inputs[:, i], None if input_slopes is None else input_slopes[:, i],
-                                 low=low[i], high=high[i], index=i, name=name, at_samples=ctx.sampled)
-            for i, name in enumerate(plant.input_names)
-        )
-        saturated = _simulate_saturated(
-            ctx, kind, time, states, inputs, outputs, output_metrics, input_metrics, law_offset,
-            outside_forcing, low, high, threshold, starts, finals, targets, final_reason, target_reasons,
-        )
-
     return Response(
-        kind=kind,
-        time=_read_only(time),
-        states=_read_only(states),
-        outputs=_read_only(outputs),
-        inputs=_read_only(inputs),
+        kind=plan.kind,
+        time=piece.time,
+        states=piece.states,
+        outputs=piece.outputs,
+        inputs=piece.inputs,
         limit_violations=violations,
-        output_metrics=output_metrics,
-        input_metrics=input_metrics,
-        targets=_read_only(targets),
-        diverged_at=diverged_at,
-        description=description,
+        output_metrics=piece.output_metrics,
+        input_metrics=piece.input_metrics,
+        targets=_read_only(plan.targets),
+        diverged_at=piece.diverged_at,
+        description=plan.description,
         **saturated,
     )
 
 
-def _simulate_saturated(ctx, kind, time, states, inputs, outputs, output_metrics, input_metrics, law_offset,
-                        outside_forcing, low, high, threshold, starts, finals, targets, final_reason,
-                        target_reasons):
-    plant, K = ctx.plant, ctx.K
-    A, B, C, D = plant.A, plant.B, plant.C, plant.D
+def _limit_violations(ctx: _Context, piece: _Piece, low, high) -> tuple[LimitViolation, ...]:
+    time, input_rows, input_slopes = piece.time, piece.input_rows, piece.input_slopes
+    return tuple(
+        find_limit_violation(time, input_rows[i], None if input_slopes is None else input_slopes[i],
+                             low=low[i], high=high[i], index=i, name=name, at_samples=ctx.sampled)
+        for i, name in enumerate(ctx.plant.input_names)
+    )
+
+
+def _saturated_energies(ctx: _Context, piece: _Piece, switching: SwitchingLoop, sat_states, sat_inputs, patterns,
+                        valid: int, low, high) -> np.ndarray:
+    """∫u² dt of the clipped inputs: exact per run of one pattern of pinned inputs (continuous).
+
+    A pinned input is held at its limit v over the step: v² h. The free inputs follow the
+    law of their pattern exactly (:func:`step_energies` of the pattern's loop); where every
+    input is free the loop is the linear one, whose projections are already at hand.
+    Sampled loops hold each clipped input over the period: T Σ u[k]².
+    """
+    m = sat_inputs.shape[1]
+    if ctx.sampled:
+        return ctx.time_step * np.sum(sat_inputs[: max(valid - 1, 0)] ** 2, axis=0)
+    energies = np.zeros(m)
+    if valid < 2:
+        return energies
+    n = ctx.plant.state_count
+    used = patterns[: valid - 1]
+    # one whole number per pattern (digits −1/0/+1 in base 3), to group the steps by pattern
+    codes = used[:, 0] + 1 if m == 1 else (used + 1) @ (3 ** np.arange(m))
+    for code in np.flatnonzero(np.bincount(codes)).tolist():
+        rows = np.flatnonzero(codes == code)
+        pattern = used[rows[0]]
+        pinned = pattern != 0
+        if pinned.any():
+            held = np.where(pattern > 0, high, low)[pinned]
+            energies[pinned] += held * held * (ctx.time_step * rows.size)
+        free = ~pinned
+        if not free.any():
+            continue
+        projections = piece.projections
+        if free.all() and projections is not None:
+            # z = [x; e] of the linear loop with e the unit vector of this response
+            mixed = projections.reshape(projections.shape[0], -1)
+            projected = sat_states[rows] @ mixed[:n] + mixed[n + piece.index]
+            energies += np.einsum("kj,kj->j", projected, projected).reshape(m, -1).sum(axis=1)
+        else:
+            generator, applied = switching.mode_generator(pattern)
+            augmented = np.hstack([sat_states[rows], np.ones((rows.size, 1))])
+            energies[free] += step_energies(generator[:n, :n], generator[:n, n:], applied[free], ctx.time_step,
+                                            augmented)
+    return energies
+
+
+def _saturated_trajectory(ctx: _Context, piece: _Piece, low, high) -> dict:
+    """The clipped loop of one response: arrays, energies, blow-up; metrics are added by the caller."""
+    plant, plan = ctx.plant, piece.plan
+    C, D = plant.C, plant.D
     m = plant.input_count
+    states, inputs, input_rows = piece.states, piece.inputs, piece.input_rows
     count = states.shape[0]
-    beyond = np.any((inputs < low) | (inputs > high), axis=1)
-    if not beyond.any():
+    beyond = ((input_rows < low[:, None]) | (input_rows > high[:, None])).any(axis=0)
+    first = int(beyond.argmax())
+    if not beyond[first]:
         # The demand never leaves the actuator range at a grid point, so the clipped
         # loop never switches away from the linear law: it is the same trajectory.
         return dict(
-            saturated_states=_read_only(states),
-            saturated_outputs=_read_only(outputs),
-            saturated_inputs=_read_only(inputs),
-            saturated_output_metrics=output_metrics,
-            saturated_input_metrics=input_metrics,
+            saturated_states=states,
+            saturated_outputs=piece.outputs,
+            saturated_inputs=inputs,
+            saturated_output_metrics=piece.output_metrics,
+            saturated_input_metrics=piece.input_metrics,
             saturated_diverged_at=None,
         )
-    first = int(np.argmax(beyond))
-    switching = SwitchingLoop(A, B, K, law_offset, outside_forcing, low, high, ctx.time_step, ctx.sampled)
+    switching = ctx.switching_loop(plan.law_offset, plan.outside_forcing, low, high)
     tail_states, tail_law, tail_patterns = switching.run(states[first], count - first)
     sat_states = np.vstack([states[:first], tail_states])
     law = np.vstack([inputs[:first], tail_law])
@@ -663,56 +895,65 @@ def _simulate_saturated(ctx, kind, time, states, inputs, outputs, output_metrics
     sat_inputs = np.clip(law, low, high)
 
     diverged_at = None
-    cut = _blow_up_index(sat_states, threshold)
+    cut = _blow_up_index(sat_states, piece.threshold)
     valid = count
     if cut is not None:
         valid = cut + 1 if np.all(np.isfinite(sat_states[cut])) else cut
         sat_states[valid:] = np.nan
         sat_inputs[valid:] = np.nan
         diverged_at = float(cut * ctx.time_step)
-    sat_outputs = sat_states @ C.T + sat_inputs @ D.T
-
-    # energy: exact per pattern of pinned inputs (continuous), held samples (sampled)
-    energies = np.zeros(m)
-    if ctx.sampled:
-        energies = ctx.time_step * np.sum(sat_inputs[: max(valid - 1, 0)] ** 2, axis=0)
-    elif valid >= 2:
-        used = patterns[: valid - 1]
-        # one whole number per pattern (digits −1/0/+1 in base 3), to group the steps by pattern
-        codes = (used + 1) @ (3 ** np.arange(m))
-        for code in np.unique(codes):
-            rows = np.flatnonzero(codes == code)
-            generator, applied = switching.mode_generator(used[rows[0]])
-            augmented = np.hstack([sat_states[rows], np.ones((rows.size, 1))])
-            integral = integral_of_quadratic(generator, augmented.T @ augmented, ctx.time_step)
-            energies = energies + np.einsum("ij,jk,ik->i", applied, integral, applied)
-
-    if diverged_at is not None:
-        reason = "the loop with clipped inputs blows up"
-        out_metrics, in_metrics = _nan_metrics(plant, reason)
-    else:
-        ends_free = not np.any((law[valid - 1] < low) | (law[valid - 1] > high))
-        note = ""
-        sat_finals = finals
-        if not (ends_free and np.all(np.isfinite(finals))):
-            sat_finals = sat_outputs[valid - 1].copy()
-            note = ("taken from the last grid point: the input is still at a limit at the end of the horizon"
-                    if not ends_free else "taken from the last grid point")
-        out_metrics = _measure_all(ctx, kind, time, sat_outputs, None, starts, sat_finals, targets,
-                                   final_reason, note, target_reasons)
-        in_metrics = tuple(
-            measure_input(time, sat_inputs[:, i], None, energy=float(energies[i]), index=i, name=name,
-                          at_samples=ctx.sampled)
-            for i, name in enumerate(plant.input_names)
-        )
-    return dict(
-        saturated_states=_read_only(sat_states),
-        saturated_outputs=_read_only(sat_outputs),
-        saturated_inputs=_read_only(sat_inputs),
-        saturated_output_metrics=out_metrics,
-        saturated_input_metrics=in_metrics,
+    output_rows = C @ sat_states.T + D @ sat_inputs.T
+    input_rows = np.ascontiguousarray(sat_inputs.T)
+    energies = _saturated_energies(ctx, piece, switching, sat_states, sat_inputs, patterns, valid, low, high)
+    for array in (sat_states, output_rows, sat_inputs):
+        array.flags.writeable = False
+    result = dict(
+        saturated_states=sat_states,
+        saturated_outputs=output_rows.T,
+        saturated_inputs=sat_inputs,
+        saturated_output_metrics=None,
+        saturated_input_metrics=None,
         saturated_diverged_at=diverged_at,
     )
+    if diverged_at is not None:
+        result["saturated_output_metrics"], result["saturated_input_metrics"] = _nan_metrics(
+            plant, "the loop with clipped inputs blows up")
+        return result
+    finals = piece.finals
+    ends_free = not np.any((law[valid - 1] < low) | (law[valid - 1] > high))
+    note = ""
+    sat_finals = finals
+    if not (ends_free and np.all(np.isfinite(finals))):
+        sat_finals = output_rows[:, valid - 1].copy()
+        note = ("taken from the last grid point: the input is still at a limit at the end of the horizon"
+                if not ends_free else "taken from the last grid point")
+    result["_measure"] = (output_rows, input_rows, energies,
+                          (plan.kind, piece.starts, sat_finals, plan.targets, piece.final_reason, note,
+                           plan.target_reasons))
+    return result
+
+
+def _saturated_responses(ctx: _Context, pieces: list[_Piece], low, high) -> list[dict]:
+    """The clipped loops of every response; their metrics are measured together where they share the grid."""
+    results = [_saturated_trajectory(ctx, piece, low, high) for piece in pieces]
+    waiting = [j for j, result in enumerate(results) if "_measure" in result]
+    # responses on the same grid (all of them unless a linear response was cut short) in one batch
+    groups: dict[int, list[int]] = {}
+    for j in waiting:
+        groups.setdefault(pieces[j].time.size, []).append(j)
+    p, m = ctx.plant.output_count, ctx.plant.input_count
+    for members in groups.values():
+        count = pieces[members[0]].time.size
+        entries = [results[j].pop("_measure") for j in members]
+        outputs = np.stack([entry[0] for entry in entries], axis=1).reshape(p * len(members), count)
+        inputs = np.stack([entry[1] for entry in entries], axis=1).reshape(m * len(members), count)
+        time = pieces[members[0]].time
+        output_metrics = _measure_outputs(ctx, time, outputs, None, [entry[3] for entry in entries])
+        input_metrics = _measure_inputs(ctx, time, inputs, None, [entry[2] for entry in entries])
+        for j, out_metrics, in_metrics in zip(members, output_metrics, input_metrics):
+            results[j]["saturated_output_metrics"] = out_metrics
+            results[j]["saturated_input_metrics"] = in_metrics
+    return results
 
 
 # -- the public entry point ---------------------------------------------------------------------
@@ -799,7 +1040,7 @@ def simulate_responses(
         time_step = _positive_number(time_step, "the time step")
 
     if initial_state is None:
-        start = plant.initial_state if plant.initial_state is not None else np.eye(n)[0]
+        start = plant.initial_state if plant.initial_state is not None else np.eye(1, n).ravel()
     else:
         start = np.asarray(initial_state, dtype=float).reshape(-1)
         if start.shape != (n,) or not np.all(np.isfinite(start)):
@@ -823,7 +1064,8 @@ def simulate_responses(
 
     loop = plant.A - plant.B @ K
     poles = np.linalg.eigvals(loop)
-    unstable, boundary = _classify_poles(poles, loop, sampled)
+    tolerance = _stability_tolerance(loop, sampled)
+    unstable, boundary = _classify_poles(poles, loop, sampled, tolerance)
     diverging = unstable.size > 0
     diverging_reason = ""
     notes: list[str] = []
@@ -841,7 +1083,7 @@ def simulate_responses(
     stable = not diverging and boundary.size == 0
 
     sample_time = plant.sample_time
-    horizon_used, step, count = _choose_grid(poles, loop, sampled, sample_time, horizon, time_step)
+    horizon_used, step, count = _choose_grid(poles, loop, sampled, sample_time, horizon, time_step, tolerance)
     ctx = _Context(plant, K, loop, sampled, step, count, stable, no_steady, diverging_reason, float(settling_band))
 
     zeros_m, zeros_n = np.zeros(m), np.zeros(n)
@@ -852,29 +1094,29 @@ def simulate_responses(
     condition = NAN
     step_reason = ""
     try:
-        prefilter, condition, _ = _prefilter_with_condition(plant, K)
+        prefilter, condition, _ = _prefilter_with_condition(plant, K, loop)
     except AnalysisError as error:
         step_reason = str(error)
 
-    # (kind, start, law offset u₀, outside forcing, targets, target reasons, description)
-    plans = [("initial", start, zeros_m, zeros_n, rest_targets, no_reasons,
-              "regulation from the initial state with u = −Kx")]
+    plans = [_Plan("initial", start, zeros_m, zeros_n, rest_targets, no_reasons,
+                   "regulation from the initial state with u = −Kx")]
     if prefilter is not None:
         step_targets = np.full(p, NAN)
         step_targets[list(tracked)] = reference_values
         target_reasons = tuple(
             "" if i in tracked else "this output is not tracked, so it has no reference" for i in range(p)
         )
-        plans.append(("step", zeros_n, prefilter @ reference_values, zeros_n, step_targets, target_reasons,
-                      "reference step on the tracked outputs with u = −Kx + N r"))
-    plans.append(("disturbance", zeros_n, zeros_m, plant.disturbance_matrix @ np.asarray(plant.disturbance_step),
-                  rest_targets, no_reasons, "disturbance step while regulating with u = −Kx"))
+        plans.append(_Plan("step", zeros_n, prefilter @ reference_values, zeros_n, step_targets, target_reasons,
+                           "reference step on the tracked outputs with u = −Kx + N r"))
+    plans.append(_Plan("disturbance", zeros_n, zeros_m,
+                       plant.disturbance_matrix @ np.asarray(plant.disturbance_step), rest_targets, no_reasons,
+                       "disturbance step while regulating with u = −Kx"))
 
     # All responses share the loop: response r is z = [x; e_r] of one augmented system
     # whose extra states carry the constant forcings, so one matrix exponential and one
     # doubling chain give every trajectory exactly at the grid points.
     count_r = len(plans)
-    forcings = np.array([plant.B @ law + outside for _, _, law, outside, _, _, _ in plans])
+    forcings = np.array([plant.B @ plan.law_offset + plan.outside_forcing for plan in plans])
     equilibria = _equilibria(ctx, forcings)
     size = n + count_r
     generator = np.zeros((size, size))
@@ -894,13 +1136,18 @@ def simulate_responses(
     trajectories = propagate_many(step_map, starts, count)
     applied = np.zeros((m, size))
     applied[:, :n] = -K
-    applied[:, n:] = np.array([law for _, _, law, _, _, _, _ in plans]).T
-    energies = _Energies(ctx, generator, applied)
+    applied[:, n:] = np.array([plan.law_offset for plan in plans]).T
 
-    results = {}
-    for r, (kind, first_state, law, outside, targets, reasons, description) in enumerate(plans):
-        results[kind] = _simulate_one(ctx, kind, trajectories[:, r, :], energies, first_state, law, outside,
-                                      forcings[r], equilibria[r], targets, reasons, description)
+    pieces = _linear_responses(ctx, plans, trajectories, forcings, equilibria, applied)
+    violations = [()] * len(pieces)
+    saturated = [None] * len(pieces)
+    if plant.input_limits is not None:
+        low = np.array([pair[0] for pair in plant.input_limits], dtype=float)
+        high = np.array([pair[1] for pair in plant.input_limits], dtype=float)
+        violations = [_limit_violations(ctx, piece, low, high) for piece in pieces]
+        saturated = _saturated_responses(ctx, pieces, low, high)
+    results = {piece.plan.kind: _response(ctx, piece, violations[j], saturated[j])
+               for j, piece in enumerate(pieces)}
     initial, step_response, disturbance = results["initial"], results.get("step"), results["disturbance"]
 
     return ResponseSet(

@@ -24,6 +24,7 @@ from gainboard.core._propagation import (
     integral_of_quadratic,
     matrix_exponential,
     propagate_affine,
+    step_energies,
     transition_matrices,
 )
 from gainboard.core._responses import reference_prefilter, simulate_responses
@@ -410,6 +411,42 @@ def test_quadratic_integral_survives_fast_modes_and_long_steps():
     np.testing.assert_allclose(found, reference, rtol=1e-8, atol=1e-11)
 
 
+def test_step_input_energy_stays_exact_when_a_large_prefilter_nearly_cancels_the_feedback():
+    # x' = −x + u, u = −k x + N r with N = 1 + k: u = 1 + k e^{−(1+k)t} settles at 1 while N = 10 001,
+    # the regime where summing quadratic forms of the state loses digits (derived by hand).
+    k, horizon = 1.0e4, 5.0
+    plant = Plant(A=[[-1.0]], B=[[1.0]], C=[[1.0]])
+    result = simulate_responses(plant, [[k]], horizon=horizon, time_step=horizon / 1999)
+    c, T = 1.0 + k, result.step.time[-1]
+    assert result.prefilter[0, 0] == pytest.approx(c, rel=1e-14)
+    # ∫₀ᵀ (1 + k e^{−ct})² dt = T + 2k(1 − e^{−cT})/c + k²(1 − e^{−2cT})/(2c)  (derived by hand)
+    expected = T + 2 * k * (1 - math.exp(-c * T)) / c + k * k * (1 - math.exp(-2 * c * T)) / (2 * c)
+    assert result.step.input_metrics[0].energy == pytest.approx(expected, rel=1e-13)
+
+
+@pytest.mark.parametrize("speed, time_step", [(0.1, 0.5), (2.0, 0.5), (10.0, 0.5), (400.0, 1.0)])
+def test_energy_of_one_step_equals_quadrature_of_the_squared_input(rng, speed, time_step):
+    # From a slow loop (Taylor series straight away) through non-normal fast ones (the step cut
+    # into 2 and 16 pieces) to one far beyond (block-exponential weights); forcings a thousand
+    # times the loop's size exercise the rescaled constant states.
+    n, r, m = 3, 2, 2
+    loop = speed * (np.triu(rng.normal(size=(n, n)), 1) * 3.0 - np.diag([1.0, 2.0, 3.0]))
+    forcings = 1e3 * speed * rng.normal(size=(n, r))
+    applied = rng.normal(size=(m, n + r))
+    points = rng.normal(size=(4, n + r))
+    generator = np.zeros((n + r, n + r))
+    generator[:n, :n], generator[:n, n:] = loop, forcings
+
+    def u_squared(t):
+        inputs = applied @ scipy.linalg.expm(generator * t) @ points.T
+        return np.sum(inputs * inputs, axis=1)
+
+    # Reference: scipy.integrate.quad_vec of |u(t)|² with u(t) = G e^{Ft} z built from scipy.linalg.expm
+    fast = [time_step * 10.0**-e for e in range(1, 5)]
+    reference, _ = scipy.integrate.quad_vec(u_squared, 0.0, time_step, epsabs=0.0, epsrel=1e-13, points=fast)
+    np.testing.assert_allclose(step_energies(loop, forcings, applied, time_step, points), reference, rtol=1e-11)
+
+
 # -- saturation ---------------------------------------------------------------------------------------------------
 def test_saturated_integrator_follows_the_exact_clipped_solution():
     k, x0, limit = 2.0, 3.0, 1.0
@@ -433,6 +470,20 @@ def test_saturated_integrator_follows_the_exact_clipped_solution():
     energy = limit**2 * t1 + limit**2 * (1 - math.exp(-2 * k * (t[-1] - t1))) / (2 * k)
     assert response.saturated_input_metrics[0].energy == pytest.approx(energy, abs=limit**2 * h)
     assert response.saturated_input_metrics[0].peak_magnitude == limit
+
+
+def test_saturated_effort_is_the_exact_integral_over_pinned_and_free_steps():
+    k, x0, limit = 2.0, 3.0, 1.0
+    plant = Plant(A=[[0.0]], B=[[1.0]], input_limits=((-limit, limit),), initial_state=[x0])
+    result = simulate_responses(plant, [[k]], horizon=6.0)
+    response, h = result.initial, result.time_step
+    x = response.saturated_states[:-1, 0]
+    # ẋ = clip(−kx) with the clip decided at each grid point: a pinned step holds u = ∓L, ∫u² = L²h;
+    # a free step has u = −k x_j e^{−kτ}, ∫₀ʰ u² dτ = k x_j² (1 − e^{−2kh})/2 (derived by hand)
+    pinned = np.abs(k * x) > limit
+    per_step = np.where(pinned, limit**2 * h, k * x**2 * (1 - math.exp(-2 * k * h)) / 2)
+    assert pinned.any() and not pinned.all()
+    assert response.saturated_input_metrics[0].energy == pytest.approx(float(np.sum(per_step)), rel=1e-12)
 
 
 def test_first_limit_crossing_of_disturbance_response_is_interpolated_exactly():
