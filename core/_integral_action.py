@@ -156,7 +156,7 @@ def augment_with_integral_action(plant: Plant, outputs=None) -> Plant:
     """
     tracked = _tracked(plant, outputs)
     _check_integrators_controllable(plant, tracked)
-    n, m, q = plant.state_count, plant.input_count, len(tracked)
+    n, q = plant.state_count, len(tracked)
     C_t, D_t = plant.C[list(tracked)], plant.D[list(tracked)]
     weight = plant.sample_time if plant.is_sampled else 1.0
     A = np.zeros((n + q, n + q))

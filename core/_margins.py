@@ -502,7 +502,6 @@ def _peak_gain(A, B, C, D) -> tuple[float, float]:
     some singular value equals γ) either confirms no higher peak or points to
     the intervals where one lies, which raises γ — repeated until it settles.
     """
-    n = A.shape[0]
     eigenvalues = np.linalg.eigvals(A)
     magnitudes = np.abs(eigenvalues)
     low, high = magnitudes.min() / 1e3, magnitudes.max() * 1e3

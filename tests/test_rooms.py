@@ -241,7 +241,8 @@ def test_a_full_room_refuses_one_more(reference_plant):
 def test_the_registry_forgets_the_longest_empty_room_when_full(reference_plant):
     registry = RoomRegistry(max_rooms=2)
     seed = shared(reference_plant, REFERENCE_GAIN)
-    first, second = registry.room("a"), registry.room("b")
+    registry.room("a")
+    second = registry.room("b")
     member = RoomMember("Ana", lambda function: None, lambda change: None)
     second.join(member, seed)
     registry.room("c")  # "a" is empty, "b" is in use

@@ -77,7 +77,7 @@ class PoleTable:
         open_loop = evaluation.open_loop
         open_movable = tuple(evaluation.structure.pole_movable)
         summary = (
-            f'<span class="gb-pass">closed loop stable</span>' if closed.stable
+            '<span class="gb-pass">closed loop stable</span>' if closed.stable
             else '<span class="gb-fail">closed loop unstable</span>'
         )
         margin_word = "largest |z|" if sampled else "slowest decay rate"
