@@ -48,9 +48,11 @@ from .views.tables import TABLE_CSS, ChecksTable, PoleTable
 
 __all__ = ["Workbench", "build_workbench", "open_session", "configure_panel", "NAME_PARAMETER"]
 
-#: While a design is dragged, tables and texts are redrawn at most this often (s); the
-#: plots follow every step.
-TEXT_REFRESH_INTERVAL = 0.25
+#: While a design is dragged the plots follow every step; the tables and texts catch up
+#: when the drag pauses this long (s) ...
+DETAILS_AFTER_PAUSE = 0.15
+#: ... and at least this often (s) while it goes on.
+DETAILS_AT_LEAST_EVERY = 1.0
 #: Query parameter giving the name shown to others in a live room.
 NAME_PARAMETER = "name"
 #: Longest query-parameter value read (a snapshot has its own, smaller limit).
@@ -175,9 +177,10 @@ class Workbench:
         self.fit_button.on_click(lambda event: self.pole_map.fit_view())
         self._entry_syncing = False
         self._texts_shown_at = -math.inf  # when the tables and texts were last refreshed (monotonic s)
+        self._quick_shown_at = -math.inf  # when the last quick (plots-only) step was shown
         self._details_scheduled = False
         if document is not None:
-            state.live_detail_interval = TEXT_REFRESH_INTERVAL
+            state.live_detail_interval = DETAILS_AT_LEAST_EVERY
 
         state.param.watch(self._on_evaluation, "evaluation")
         state.param.watch(self._on_comparison, ["pinned", "lqr_poles"])
@@ -247,15 +250,17 @@ class Workbench:
 
     def _on_evaluation(self, *events) -> None:
         # While a slider or pole is dragged the plots follow every step, but the tables and
-        # texts (a fifth of the server's time per step and most of the browser's page layout
+        # texts (a fifth of the server's time per step and most of the browser's page-layout
         # work) and the stable intervals of all entries behind them (the slowest part for a
-        # larger K) follow at most every TEXT_REFRESH_INTERVAL: the state's quick evaluations
-        # leave the intervals out, and a timer asks it to complete them.
+        # larger K) wait: the state's quick evaluations leave the intervals out, and a timer
+        # asks it to complete them when the drag pauses, or after DETAILS_AT_LEAST_EVERY.
+        # Completing in the middle of a fast drag would delay the next step's redraw.
         evaluation = self.state.evaluation
         with pn.io.hold():
             if self.state.details_pending and self.document is not None:
                 self._refresh_views(evaluation, plots_only=True)
-                self._schedule_details(TEXT_REFRESH_INTERVAL - (time.monotonic() - self._texts_shown_at))
+                self._quick_shown_at = time.monotonic()
+                self._schedule_details(DETAILS_AFTER_PAUSE)
             else:
                 self._refresh_views(evaluation, plots_only=False)
 
@@ -277,6 +282,11 @@ class Workbench:
         self._refresh_entry_choice(evaluation)
         self._texts_shown_at = time.monotonic()
 
+    def _details_due_in(self) -> float:
+        """Seconds until the tables should catch up: a pause in the drag, or the longest wait."""
+        due = min(self._quick_shown_at + DETAILS_AFTER_PAUSE, self._texts_shown_at + DETAILS_AT_LEAST_EVERY)
+        return due - time.monotonic()
+
     def _schedule_details(self, delay: float) -> None:
         if self._details_scheduled:
             return
@@ -287,9 +297,14 @@ class Workbench:
             from panel.io.state import set_curdoc
 
             self._details_scheduled = False
-            if self.state.details_pending and not self._closed:
-                with set_curdoc(document), pn.io.hold(document):
-                    self._guarded(self.state.complete_details)
+            if not self.state.details_pending or self._closed:
+                return
+            remaining = self._details_due_in()
+            if remaining > 0.0:  # the drag went on: look again when it may have paused
+                self._schedule_details(remaining)
+                return
+            with set_curdoc(document), pn.io.hold(document):
+                self._guarded(self.state.complete_details)
 
         document.add_timeout_callback(catch_up, max(1, int(1000 * delay)))
 

@@ -16,6 +16,7 @@ from bokeh.models import ColumnDataSource, Range1d
 from bokeh.plotting import figure
 
 from ..theme import PALETTE, format_number, trace_colour
+from .data_sources import update_source
 from .html_box import HtmlBox
 from .plot_ranges import steady_time_end, steady_value_range
 
@@ -41,8 +42,9 @@ def _response_of(evaluation, kind: str):
 
 def _finite_list(values) -> np.ndarray:
     # A float array travels to the browser as one binary buffer; Bokeh draws NaN as a gap
-    # (the saturated loop marks samples after a blow-up with NaN).
-    return np.array(values, dtype=float)
+    # (the saturated loop marks samples after a blow-up with NaN). Single precision (7
+    # digits) is far finer than a pixel and halves what each slider step sends.
+    return np.array(values, dtype=np.float32)
 
 
 class ResponsePlots:
@@ -131,13 +133,20 @@ class ResponsePlots:
                             limits["xs"].append([0.0, end_time])
                             limits["ys"].append([level, level])
                             limits["colour"].append(trace_colour(j))
+        # While a design is dragged the ranges only grow: a range change re-measures the axis
+        # labels and lays the plot out again in the browser (about 20 ms), and curves that
+        # shrink back under a fixed axis are easier to follow. The release fits them again.
+        growing = self.state.gesture_active
+        end_time = max(end_time, self.output_figure.x_range.end) if growing else end_time
         self.output_figure.x_range.update(start=0.0, end=end_time, reset_start=0.0, reset_end=end_time)
         for fig, lines in ((self.output_figure, outputs), (self.input_figure, inputs)):
             low, high = steady_value_range(lines["ys"])
+            if growing:
+                low, high = min(low, fig.y_range.start), max(high, fig.y_range.end)
             fig.y_range.update(start=low, end=high, reset_start=low, reset_end=high)
         self.output_source.data = outputs
         self.input_source.data = inputs
-        self.limit_source.data = limits
+        update_source(self.limit_source, limits)
         if texts:
             self._refresh_text(evaluation, response, ghost is not None)
 
