@@ -252,8 +252,7 @@ def _crossing(time, values, slopes, k: int, level: float, last: bool = False, at
     With ``at_samples`` (a sampled plant, whose signals exist only at the samples)
     the answer is the sample t_{k+1} where the new side is first seen. With slopes, the
     crossing of the cubic Hermite interpolant is found on its first (or last) monotone
-    piece that changes side, by :func:`_bisect` (written out here: this runs a few
-    times per signal on every update).
+    piece that changes side, by :func:`_bisect`.
     """
     if at_samples:
         return float(time[k + 1])
@@ -275,34 +274,7 @@ def _crossing(time, values, slopes, k: int, level: float, last: bool = False, at
                 f_high = ((a * high + b) * high + c) * high + y0 - level
                 if not (f_low == 0.0 or f_high == 0.0 or (f_low > 0.0) != (f_high > 0.0)):
                     continue
-                # _bisect(coefficients, level, low, high), inline
-                d = y0 - level
-                f_low = ((a * low + b) * low + c) * low + d
-                f_high = ((a * high + b) * high + c) * high + d
-                if f_low == 0.0:
-                    return t0 + low * h
-                if f_high == 0.0:
-                    return t0 + high * h
-                s = low - f_low * (high - low) / (f_high - f_low)
-                if not low < s < high:
-                    s = 0.5 * (low + high)
-                for _ in range(60):
-                    f = ((a * s + b) * s + c) * s + d
-                    if f == 0.0:
-                        break
-                    if (f > 0.0) == (f_low > 0.0):
-                        low, f_low = s, f
-                    else:
-                        high = s
-                    slope = (3.0 * a * s + 2.0 * b) * s + c
-                    following = s - f / slope if slope != 0.0 else 0.5 * (low + high)
-                    if not low < following < high:
-                        following = 0.5 * (low + high)
-                    if abs(following - s) <= 1e-16 or high - low <= 1e-15:
-                        s = following
-                        break
-                    s = following
-                return t0 + s * h
+                return t0 + _bisect((a, b, c, y0), level, low, high) * h
     if y1 == y0:
         return t0
     s = min(max((level - y0) / (y1 - y0), 0.0), 1.0)
