@@ -265,10 +265,14 @@ class Workbench:
                 self._refresh_views(evaluation, plots_only=False)
 
     def _refresh_views(self, evaluation, *, plots_only: bool) -> None:
-        views = (self.pole_map,) if plots_only else self.views
-        for view in views:
+        if plots_only:
+            refreshes = [(self.pole_map, self.pole_map.refresh),
+                         (self.responses, lambda evaluation: self.responses.refresh(evaluation, texts=False))]
+        else:
+            refreshes = [(view, view.refresh) for view in self.views]
+        for view, refresh in refreshes:
             try:
-                view.refresh(evaluation)
+                refresh(evaluation)
             except Exception as error:  # one broken view must not blank the others
                 log.exception("refreshing %s failed", type(view).__name__)
                 self._report_unexpected(error)
@@ -276,7 +280,6 @@ class Workbench:
                 # show the failure again once it has.
                 self.run_in_session(lambda error=error: self._report_unexpected(error))
         if plots_only:
-            self.responses.refresh(evaluation, texts=False)
             return
         self._refresh_header(evaluation)
         self._refresh_entry_choice(evaluation)
