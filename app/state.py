@@ -196,7 +196,7 @@ class DesignState(param.Parameterized):
         self._live = False
         #: While dragging, evaluations within this many seconds of the last complete one leave out
         #: the stable intervals of all entries (the slowest part for larger K); 0 keeps every
-        #: evaluation complete. A served workbench sets it (its tables catch up at that pace).
+        #: evaluation complete. A served workbench sets it (and completes earlier when a drag pauses).
         self.live_detail_interval = 0.0
         self._details_at = -math.inf
         #: An object with get/put (see gainboard.app.rooms.SharedEvaluations) shared by the sessions
@@ -252,6 +252,8 @@ class DesignState(param.Parameterized):
         # drawn live and are the slowest part); the release evaluates everything.
         now = time.monotonic()
         quick = self._live and now - self._details_at < self.live_detail_interval
+        if not quick:
+            self._details_at = now
         cache, key = self.evaluation_cache, None
         if cache is not None:
             key = (id(self.plant), id(self.specs), self.gain.shape, self.gain.tobytes(), self.selected_entry,
@@ -266,8 +268,6 @@ class DesignState(param.Parameterized):
         evaluation = core.evaluate_design(self.plant, self.gain, options)
         if cache is not None:
             cache.put(key, self.plant, self.specs, evaluation)
-        if not quick:
-            self._details_at = now
         return evaluation, quick
 
     def _recompute(self, *events):
