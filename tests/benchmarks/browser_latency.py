@@ -9,7 +9,8 @@ headless Debian chromium (1366×768) and measures, in the page's own clock:
 
 - drag: the mouse holds the first gain slider and moves a few pixels at a time;
   latency = from the pointer move to the second animation frame after the
-  response plot's data changed (the plots are painted by then);
+  response plot's data changed (the plots are painted by then). The first few
+  moves after the page has loaded are reported apart, as a warm-up;
 - keyboard: ArrowRight on the focused slider handle, same end point (this path
   ends the gesture, so it includes the full evaluation with margins).
 
@@ -50,6 +51,9 @@ INSTALL_PROBE = """() => {
 }"""
 
 
+#: Moves at the start of the first drag that are reported apart: the browser compiles its
+#: drawing code and the server runs each code path for the first time there.
+WARM_UP_MOVES = 5
 #: Poll the page on a timer, not on animation frames: Playwright's default (requestAnimationFrame)
 #: keeps the page rendering a frame every 16 ms, work a user's idle page never does, and it
 #: competes with the redraw being measured. The latency itself is timed inside the page.
@@ -90,12 +94,13 @@ def measure(plant: str, moves: int, floor: bool = False) -> None:
 
             page.mouse.move(x, y)
             page.mouse.down()
-            for step in range(moves):
+            for step in range(WARM_UP_MOVES + moves):
                 x += 4 if (step // 10) % 2 == 0 else -4  # wander back and forth within the range
                 page.mouse.move(x, y)
                 page.wait_for_function(f"() => window.__latencies.length > {step}", timeout=30_000, polling=POLL_MS)
             page.mouse.up()
-            drag = list(page.evaluate("() => window.__latencies"))
+            timed = list(page.evaluate("() => window.__latencies"))
+            warm_up, drag = timed[:WARM_UP_MOVES], timed[WARM_UP_MOVES:]
 
             page.wait_for_function("() => Bokeh.documents[0].is_idle")
             page.wait_for_timeout(500)
@@ -110,6 +115,7 @@ def measure(plant: str, moves: int, floor: bool = False) -> None:
     finally:
         server.stop()
     print("floor: one slider redrawing one plot (floor_app.py)" if floor else f"plant: {plant}")
+    report(f"first {WARM_UP_MOVES} moves of the page's first drag (warm-up, not counted)", warm_up)
     report("slider drag → redrawn plots", drag)
     report("slider key → redrawn plots (full evaluation)", keyboard)
 
