@@ -312,7 +312,8 @@ class DesignState(param.Parameterized):
 
     def clear_message(self) -> None:
         """Dismiss the current message."""
-        self._say("", "none")
+        if self.message or self.message_kind != "none":  # every drag step clears: keep that free
+            self._say("", "none")
 
     @contextlib.contextmanager
     def _reporting(self, action: str):

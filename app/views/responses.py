@@ -47,6 +47,12 @@ def _finite_list(values) -> np.ndarray:
     return np.array(values, dtype=np.float32)
 
 
+def _set_range(axis_range, start: float, end: float) -> None:
+    # Bokeh validates every property set even when nothing changes; ranges mostly stay put
+    if (axis_range.start, axis_range.end, axis_range.reset_start, axis_range.reset_end) != (start, end, start, end):
+        axis_range.update(start=start, end=end, reset_start=start, reset_end=end)
+
+
 class ResponsePlots:
     """The responses panel of one session."""
 
@@ -138,12 +144,12 @@ class ResponsePlots:
         # shrink back under a fixed axis are easier to follow. The release fits them again.
         growing = self.state.gesture_active
         end_time = max(end_time, self.output_figure.x_range.end) if growing else end_time
-        self.output_figure.x_range.update(start=0.0, end=end_time, reset_start=0.0, reset_end=end_time)
+        _set_range(self.output_figure.x_range, 0.0, end_time)
         for fig, lines in ((self.output_figure, outputs), (self.input_figure, inputs)):
             low, high = steady_value_range(lines["ys"])
             if growing:
                 low, high = min(low, fig.y_range.start), max(high, fig.y_range.end)
-            fig.y_range.update(start=low, end=high, reset_start=low, reset_end=high)
+            _set_range(fig.y_range, low, high)
         self.output_source.data = outputs
         self.input_source.data = inputs
         update_source(self.limit_source, limits)
