@@ -495,6 +495,11 @@ class DesignState(param.Parameterized):
         return True
 
     @property
+    def evaluating_live(self) -> bool:
+        """True while the evaluation being shown comes from a live drag step (not its release)."""
+        return self._live
+
+    @property
     def gesture_active(self) -> bool:
         """True while a slider or pole is being dragged (live changes not yet closed)."""
         return self._gesture_start is not None or self._drag is not None

@@ -392,6 +392,30 @@ def test_the_workbench_builds_and_shows_the_design_without_a_browser(reference_p
     assert workbench.design_bar.gain_text.value == "[[199, 55, 8]]"
 
 
+def test_response_axes_only_grow_during_a_drag_and_fit_the_data_on_release(reference_plant):
+    from gainboard.app.views.plot_ranges import steady_time_end, steady_value_range
+    from gainboard.app.workbench import build_workbench
+
+    workbench = build_workbench(reference_plant).workbench
+    state, plots = workbench.state, workbench.responses
+    state.set_gain(REFERENCE_GAIN)
+    x_range, y_range = plots.output_figure.x_range, plots.output_figure.y_range
+    shown = [(x_range.end, y_range.start, y_range.end)]
+    # k11 down from 199 towards 40 slows the loop (longer horizon), then back up (shorter)
+    for value in (150.0, 100.0, 60.0, 120.0, 199.0):
+        state.set_entry(0, 0, value, live=True)
+        shown.append((x_range.end, y_range.start, y_range.end))
+    ends, lows, highs = zip(*shown)
+    assert list(ends) == sorted(ends) and list(highs) == sorted(highs) and list(lows) == sorted(lows, reverse=True)
+    state.set_entry(0, 0, 199.0)  # the release: the axes fit this design's data again
+    response = state.evaluation.responses.initial
+    assert x_range.end == steady_time_end(float(response.time[-1]))
+    assert (y_range.start, y_range.end) == steady_value_range([response.outputs[:, 0], response.saturated_outputs[:, 0]]
+                                                               if response.saturated_outputs is not None
+                                                               else [response.outputs[:, 0]])
+    assert x_range.end < max(ends)  # the design at release settles faster than the slowest one shown
+
+
 def test_dragging_on_the_map_without_a_browser_assigns_the_poles(reference_plant):
     from bokeh.events import Pan, PanEnd, PanStart
 

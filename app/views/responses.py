@@ -142,7 +142,7 @@ class ResponsePlots:
         # While a design is dragged the ranges only grow: a range change re-measures the axis
         # labels and lays the plot out again in the browser (about 20 ms), and curves that
         # shrink back under a fixed axis are easier to follow. The release fits them again.
-        growing = self.state.gesture_active
+        growing = self.state.evaluating_live
         end_time = max(end_time, self.output_figure.x_range.end) if growing else end_time
         _set_range(self.output_figure.x_range, 0.0, end_time)
         for fig, lines in ((self.output_figure, outputs), (self.input_figure, inputs)):
