@@ -178,17 +178,6 @@ class LimitViolation:
 # These scalar helpers run a handful of times per signal, so they work on Python floats
 # (read from the arrays a few at a time) instead of numpy scalars: the same IEEE
 # arithmetic, several times less interpreter overhead.
-def _hermite_coefficients(t0, t1, y0, y1, d0, d1):
-    """Cubic a s³ + b s² + c s + d on s ∈ [0, 1] matching values and slopes (cubic Hermite)."""
-    h = t1 - t0
-    return (
-        float(2 * y0 + h * d0 - 2 * y1 + h * d1),
-        float(-3 * y0 - 2 * h * d0 + 3 * y1 - h * d1),
-        float(h * d0),
-        float(y0),
-    )
-
-
 def _bisect(coefficients, level, low, high) -> float:
     """Root of cubic(s) = level in [low, high], where the cubic is monotone and changes side.
 
@@ -262,7 +251,7 @@ def _crossing(time, values, slopes, k: int, level: float, last: bool = False, at
         d0, d1 = slopes[k : k + 2].tolist()
         if math.isfinite(d0) and math.isfinite(d1):
             h = t1 - t0
-            # cubic Hermite coefficients, as _hermite_coefficients
+            # cubic Hermite a s³ + b s² + c s + y0 on s ∈ [0, 1] matching values and slopes
             a = 2 * y0 + h * d0 - 2 * y1 + h * d1
             b = -3 * y0 - 2 * h * d0 + 3 * y1 - h * d1
             c = h * d0
@@ -300,7 +289,12 @@ def _refined_extreme(time, values, slopes, k: int, direction: float, at_samples:
             d0, d1 = slope[j], slope[j + 1]
             if not (math.isfinite(d0) and math.isfinite(d1)):
                 continue
-            a, b, c, d = _hermite_coefficients(t[j], t[j + 1], y[j], y[j + 1], d0, d1)
+            # cubic Hermite a s³ + b s² + c s + d on s ∈ [0, 1] matching values and slopes
+            h, y0, y1 = t[j + 1] - t[j], y[j], y[j + 1]
+            a = 2 * y0 + h * d0 - 2 * y1 + h * d1
+            b = -3 * y0 - 2 * h * d0 + 3 * y1 - h * d1
+            c = h * d0
+            d = y0
             for s in _cubic_roots_in_unit(a, b, c):
                 value = ((a * s + b) * s + c) * s + d
                 if direction * value > direction * best_y:
@@ -379,34 +373,46 @@ def settling_time(time, values, slopes, final: float, band_width: float, at_samp
     return _crossing(time, values, slopes, last, level, last=True, at_samples=at_samples)
 
 
-def _peak_candidates(signals: np.ndarray, tops: np.ndarray, scales: np.ndarray) -> list[np.ndarray]:
-    """Per row of ``signals`` (c, N): the local maxima within 10⁻³·scale of the row's top, in time order.
+def _peak_candidates(padded: np.ndarray, tops, scales) -> list[list[int]]:
+    """Per signal row: the local maxima within 10⁻³·scale of the row's top, in time order.
 
-    An end point needs only its one neighbour to count as a local maximum.
+    ``padded`` (c, N + 2) holds the signals (c, N) between a column of −∞ on either
+    side, so every point has two neighbours and an end point counts as a local maximum
+    on its one real neighbour alone. ``tops`` and ``scales`` are sequences of c floats.
+    Returns one list of grid indices (0 … N − 1) per row.
     """
-    rows, count = signals.shape
-    near = np.flatnonzero(signals >= (tops - 1e-3 * scales)[:, None])  # few points, sorted by row then time
-    row, k = np.divmod(near, count)
-    flat = signals.reshape(-1)
+    rows, width = padded.shape
+    limits = [top - 1e-3 * scale for top, scale in zip(tops, scales)]
+    near = np.flatnonzero(padded >= np.array(limits)[:, None])  # few points, sorted by row then time
+    flat = padded.reshape(-1)
     here = flat[near]
-    local = (here >= flat[np.where(k > 0, near - 1, near)]) & (here >= flat[np.where(k < count - 1, near + 1, near)])
-    row, k = row[local], k[local]
+    chosen = near[(here >= flat[near - 1]) & (here >= flat[near + 1])]
+    if chosen.size <= _FEW_CANDIDATES:  # the usual case: about one per row
+        candidates = [[] for _ in range(rows)]
+        for i in chosen.tolist():
+            candidates[i // width].append(i % width - 1)
+        return candidates
+    row, k = np.divmod(chosen, width)
     bounds = np.searchsorted(row, np.arange(rows + 1)).tolist()
-    return [k[bounds[j] : bounds[j + 1]] for j in range(rows)]
+    return [(k[bounds[j] : bounds[j + 1]] - 1).tolist() for j in range(rows)]
 
 
-def _peak(cell: _Column, candidates: np.ndarray, scale: float, direction: float) -> tuple[float, float]:
+#: Up to this many candidates in all, :func:`_peak_candidates` sorts them to their rows in Python.
+_FEW_CANDIDATES = 64
+
+
+def _peak(cell: _Column, candidates: list, scale: float, direction: float) -> tuple[float, float]:
     """First highest peak of direction·y among the candidate grid points, refined between grid points.
 
     Every local maximum near the top is refined, and the earliest within 10⁻⁶ (relative)
     of the highest wins (the accuracy of the refinement), so an undamped loop reports
     its first peak.
     """
-    if candidates.size == 0:
-        candidates = np.array([int((direction * cell.values).argmax())])
-    if candidates.size == 1:  # the usual case: one point at the top
-        return cell.extreme(int(candidates[0]), direction)
-    refined = [cell.extreme(k, direction) for k in candidates[:50].tolist()]
+    if not candidates:
+        candidates = [int((direction * cell.values).argmax())]
+    if len(candidates) == 1:  # the usual case: one point at the top
+        return cell.extreme(candidates[0], direction)
+    refined = [cell.extreme(k, direction) for k in candidates[:50]]
     best = max(direction * value for _, value in refined)
     for t, value in refined:
         if direction * value >= best - 1e-6 * scale:
@@ -480,11 +486,14 @@ def _measure_output_rows(time, values, slopes, *, regulation, starts, finals, ta
     tops = [highest[j] if directions[j] > 0 else -lowest[j] for j in range(rows)]
     bottoms = [lowest[j] if directions[j] > 0 else -highest[j] for j in range(rows)]
     peak_scales = [max(abs(tops[j]), abs(bottoms[j]), 1e-300) for j in range(rows)]
-    # one scratch block serves the successive full-size passes (signals, deviations,
-    # distances, travel), so a long response needs no fresh memory for each of them
-    scratch = np.multiply(values, np.array(directions)[:, None])
-    candidates = _peak_candidates(scratch, np.array(tops), np.array(peak_scales))
-    deviations = np.subtract(values, np.array(final_list)[:, None], out=scratch)
+    # The signals direction·y go between columns of −∞ (see _peak_candidates); one contiguous
+    # scratch block then serves the successive full-size passes (deviations, distances, travel),
+    # so a long response needs no fresh memory for each of them (and no strided passes).
+    padded = np.empty((rows, count + 2))
+    padded[:, 0] = padded[:, -1] = -math.inf
+    np.multiply(values, np.array(directions)[:, None], out=padded[:, 1:-1])
+    candidates = _peak_candidates(padded, tops, peak_scales)
+    scratch = deviations = np.subtract(values, np.array(final_list)[:, None])
     # first grid point farthest above / below the final value; |y − final| is largest at
     # one of them (the earlier one on a tie), and so is the overshoot past it
     above_at, below_at = deviations.argmax(axis=1).tolist(), deviations.argmin(axis=1).tolist()

@@ -258,13 +258,13 @@ def propagate_many(step: np.ndarray, starts, count: int) -> np.ndarray:
     r, d = starts.shape
     trajectory = np.empty((count, r, d))
     trajectory[0] = starts
+    rows = trajectory.reshape(count * r, d)  # row k·r + j is z_j[k]
     filled = 1
     power = step
     with np.errstate(over="ignore", invalid="ignore"):
         while filled < count:
             take = min(filled, count - filled)
-            np.matmul(trajectory[:take].reshape(take * r, d), power.T,
-                      out=trajectory[filled : filled + take].reshape(take * r, d))
+            np.matmul(rows[: take * r], power.T, out=rows[filled * r : (filled + take) * r])
             filled += take
             if filled < count:
                 power = power @ power
@@ -362,11 +362,13 @@ def _power_growth(matrix: np.ndarray) -> float:
     # long trajectory of a large state
     if norm <= _ENERGY_GROWTHS[0] or (norm <= _ENERGY_GROWTHS[-1] and matrix.shape[0] < 16):
         return norm
-    roots = {}
-    power = matrix
-    for p in range(2, 7):
-        power = power @ matrix
-        roots[p] = float(np.abs(power).sum(axis=0).max()) ** (1.0 / p)
+    # M², …, M⁶ into one block, whose 1-norms are then read in one pass
+    powers = np.empty((5, *matrix.shape))
+    np.matmul(matrix, matrix, out=powers[0])
+    for j in range(1, 5):
+        np.matmul(powers[j - 1], matrix, out=powers[j])
+    norms = np.abs(powers, out=powers).sum(axis=1).max(axis=1).tolist()
+    roots = {p: norms[p - 2] ** (1.0 / p) for p in range(2, 7)}
     return min(norm, *(max(roots[p], roots[p + 1]) for p in (2, 3, 4, 5)))
 
 

@@ -201,6 +201,9 @@ class ResponseSet:
         return tuple(r for r in (self.initial, self.step, self.disturbance) if r is not None)
 
 
+#: Response(*fields in order), built without the per-field cost of a frozen __init__.
+
+
 # -- small helpers -----------------------------------------------------------------------
 _read_only = partial(read_only, dtype=float)
 
@@ -232,6 +235,8 @@ def _classify_poles(poles, loop, sampled, tolerance=None):
         distance = np.abs(poles) - 1.0
     else:
         distance = poles.real
+    if poles.size and distance.max() < -tolerance:  # the usual case, strictly stable: nothing to pick
+        return poles[:0], poles[:0]
     unstable = poles[distance > tolerance]
     boundary = poles[np.abs(distance) <= tolerance]
     return unstable, boundary
@@ -284,7 +289,7 @@ def _choose_grid(poles, loop, sampled, sample_time, horizon, time_step, toleranc
     elif time_step is not None:
         step = float(time_step)
     else:
-        fastest = float(np.max(np.abs(rates))) if rates.size else 0.0
+        fastest = float(np.abs(rates).max()) if rates.size else 0.0
         step = length / 400.0
         if fastest > 0.0:
             step = min(step, 0.1 / fastest)
@@ -321,11 +326,16 @@ def _condition_number(matrix: np.ndarray) -> float:
 
 
 def _frobenius(matrix: np.ndarray) -> float:
-    return float(np.sqrt(np.sum(matrix * matrix)))
+    """‖M‖_F (one dot product of the entries)."""
+    return math.sqrt(float(np.vdot(matrix, matrix)))
 
 
-def _steady_state_gain(plant: Plant, K: np.ndarray, loop: np.ndarray | None = None):
-    """Steady-state gain from a constant u₀ (added to −Kx) to the tracked outputs, and its pieces."""
+def _steady_state_gain(plant: Plant, K: np.ndarray, loop: np.ndarray | None = None, extra=None):
+    """Steady-state gain from a constant u₀ (added to −Kx) to the tracked outputs, and its pieces.
+
+    Returns (gain, (C − DK)_t, M⁻¹B, condition number or ``nan``, M⁻¹·``extra``) with M the
+    equilibrium matrix; ``extra`` (n, k) are further forcings solved with the same LU (None: none).
+    """
     A, B, C, D = plant.A, plant.B, plant.C, plant.D
     n = plant.state_count
     if loop is None:
@@ -333,18 +343,24 @@ def _steady_state_gain(plant: Plant, K: np.ndarray, loop: np.ndarray | None = No
     sampled = plant.is_sampled
     # equilibrium: 0 = loop x + B u0 (continuous) or x = loop x + B u0 (sampled)
     system = (np.eye(n) - loop) if sampled else -loop
-    # The loop is refused when cond₂(M)·n·eps·100 ≥ 1. cond₂(M) ≤ ‖M‖_F ‖M⁻¹‖_F (with a margin for
-    # their rounding), and an inverse costs less than the singular values, so a bound below the
-    # limit settles it; the exact condition number is only needed near the limit.
+    # The loop is refused when cond₂(M)·n·eps·100 ≥ 1. cond₂(M) ≤ ‖M‖_F ‖M⁻¹‖_F, and the inverse
+    # comes with the solve for (M⁻¹B) at little extra cost (one LU, more right-hand sides),
+    # while the singular values cost a decomposition of their own; so a bound below half the
+    # limit settles it (the half covers the rounding of the computed inverse, whose relative
+    # error is about cond₂·eps below the limit), and the exact condition number is only
+    # needed near the limit.
     condition = NAN
     bound = math.inf
-    if n >= 16:  # below that the singular values cost no more than the inverse
-        try:
-            with np.errstate(all="ignore"):
-                bound = _frobenius(system) * _frobenius(np.linalg.inv(system)) * (1.0 + 1e-12)
-        except np.linalg.LinAlgError:
-            pass
-    if not bound * n * _EPS * 100.0 < 1.0:  # also when the bound is not finite
+    to_state = None
+    m = B.shape[1]
+    try:
+        with np.errstate(all="ignore"):
+            solved = np.linalg.solve(system, np.hstack([B, np.eye(n)] if extra is None else [B, np.eye(n), extra]))
+        to_state = solved[:, :m]
+        bound = _frobenius(system) * _frobenius(solved[:, m : m + n]) * (1.0 + 1e-12)
+    except np.linalg.LinAlgError:
+        pass
+    if not bound * n * _EPS * 100.0 < 0.5:  # also when the bound is not finite
         condition = _condition_number(system)
     if condition * n * _EPS * 100.0 >= 1.0 or math.isinf(condition):
         poles = np.linalg.eigvals(loop)
@@ -356,12 +372,15 @@ def _steady_state_gain(plant: Plant, K: np.ndarray, loop: np.ndarray | None = No
             "outputs have no steady state for a constant reference; move that pole before asking for a "
             "reference step"
         )
-    to_state = np.linalg.solve(system, B)
+    if to_state is None:  # the LU met an exact zero pivot the singular values did not confirm
+        solved = np.linalg.solve(system, B if extra is None else np.hstack([B, extra]))
+        to_state = solved[:, :m]
+        solved = np.hstack([to_state, np.eye(n), solved[:, m:]])
     tracked = list(plant.tracked_outputs)
     tracked_feedthrough = D[tracked]
     output_of_state = C[tracked] - tracked_feedthrough @ K
     gain = output_of_state @ to_state + tracked_feedthrough
-    return gain, output_of_state, to_state, condition
+    return gain, output_of_state, to_state, condition, None if extra is None else solved[:, m + n :]
 
 
 def _spectral_norm(matrix: np.ndarray) -> float:
@@ -371,9 +390,9 @@ def _spectral_norm(matrix: np.ndarray) -> float:
     return float(np.linalg.svd(matrix, compute_uv=False)[0])
 
 
-def _prefilter_with_condition(plant: Plant, K: np.ndarray, loop: np.ndarray | None = None):
-    """(N, condition number of the steady-state gain, (I − A + BK)⁻¹B or −(A − BK)⁻¹B)."""
-    gain, output_of_state, to_state, _ = _steady_state_gain(plant, K, loop)
+def _prefilter_with_condition(plant: Plant, K: np.ndarray, loop: np.ndarray | None = None, extra=None):
+    """(N, condition number of the steady-state gain, M⁻¹B, M⁻¹·``extra``), M = I − A + BK or −(A − BK)."""
+    gain, output_of_state, to_state, _, extra_solved = _steady_state_gain(plant, K, loop, extra)
     q, m = gain.shape
     if q == m == 1:  # one input, one tracked output: σ = |M| (what the SVD returns for 1×1)
         singular_values = np.abs(gain[0])
@@ -406,7 +425,7 @@ def _prefilter_with_condition(plant: Plant, K: np.ndarray, loop: np.ndarray | No
         # fewer tracked outputs than inputs: the smallest prefilter (minimum norm) that
         # gives gain @ N = I, i.e. the pseudo-inverse of a full-row-rank gain
         prefilter = np.linalg.pinv(gain)
-    return prefilter, float(singular_values[0] / singular_values[-1]), to_state
+    return prefilter, float(singular_values[0] / singular_values[-1]), to_state, extra_solved
 
 
 def reference_prefilter(plant: Plant, K) -> np.ndarray:
@@ -447,7 +466,7 @@ def reference_prefilter(plant: Plant, K) -> np.ndarray:
     [[4.0]]
     """
     K = plant.check_gain(K)
-    prefilter, _, _ = _prefilter_with_condition(plant, K)
+    prefilter, _, _, _ = _prefilter_with_condition(plant, K)
     return _read_only(prefilter)
 
 
@@ -492,10 +511,13 @@ def _blow_up_index(states: np.ndarray, threshold: float):
 
 def _natural_sizes(ctx: _Context, plans, forcings: np.ndarray, equilibria: np.ndarray) -> list[float]:
     """Size each response should stay well within: its start, its equilibrium, its forcing."""
-    start_sizes = np.abs(np.array([plan.start for plan in plans])).max(axis=1).tolist()
-    forcing_sizes = np.abs(forcings).max(axis=1).tolist()
+    responses = len(plans)
+    # largest |entry| of every start, forcing and equilibrium in one pass (nan where the state ramps)
     with np.errstate(invalid="ignore"):
-        equilibrium_sizes = np.abs(equilibria).max(axis=1).tolist()  # nan where the state ramps
+        largest = np.abs(np.vstack([[plan.start for plan in plans], forcings, equilibria])).max(axis=1).tolist()
+    start_sizes = largest[:responses]
+    forcing_sizes = largest[responses : 2 * responses]
+    equilibrium_sizes = largest[2 * responses :]
     steps = ctx.count - 1
     span = steps if ctx.sampled else steps * ctx.time_step
     sizes = []
@@ -615,15 +637,18 @@ def _measure_outputs(ctx: _Context, time, rows: np.ndarray, slopes, batch) -> li
         return []
     # noise floor of each response from the largest |y| of its rows (all finite here)
     highest, lowest = rows.max(axis=1).tolist(), rows.min(axis=1).tolist()
+    # per response, its entries as lists of Python floats (read once, not element by element)
+    starts = [np.asarray(entry[1], dtype=float).tolist() for entry in batch]
+    finals = [np.asarray(entry[2], dtype=float).tolist() for entry in batch]
+    targets = [np.asarray(entry[3], dtype=float).tolist() for entry in batch]
     floors = []
     for r, entry in enumerate(batch):
         members = range(r, p * responses, responses)
         largest = max((max(highest[j], -lowest[j]) for j in members), default=0.0)
-        finals = [float(value) for value in entry[2]]
         if not math.isfinite(largest):  # not expected: fall back on the grid-point rule
-            floors.append(_noise_floor(rows[r::responses].T, np.asarray(finals)))
+            floors.append(_noise_floor(rows[r::responses].T, np.asarray(finals[r])))
             continue
-        finite_finals = [abs(value) for value in finals if math.isfinite(value)]
+        finite_finals = [abs(value) for value in finals[r] if math.isfinite(value)]
         if finite_finals:
             largest = max(largest, max(finite_finals))
         floors.append(1e-10 * largest)
@@ -631,9 +656,9 @@ def _measure_outputs(ctx: _Context, time, rows: np.ndarray, slopes, batch) -> li
     metrics = _measure_output_rows(
         time, rows, slopes,
         regulation=[batch[r][0] != "step" for i, r in order],
-        starts=[batch[r][1][i] for i, r in order],
-        finals=[batch[r][2][i] for i, r in order],
-        targets=[batch[r][3][i] for i, r in order],
+        starts=[starts[r][i] for i, r in order],
+        finals=[finals[r][i] for i, r in order],
+        targets=[targets[r][i] for i, r in order],
         band=ctx.band,
         noise_floors=[floors[r] for i, r in order],
         indices=[i for i, r in order],
@@ -695,8 +720,8 @@ def _linear_responses(ctx: _Context, plans: list[_Plan], trajectories: np.ndarra
     stacked = np.vstack(maps)
     products = np.empty((stacked.shape[0], responses, count))
     with np.errstate(over="ignore", invalid="ignore"):
-        for r in range(responses):  # written straight into rows (signal, time) of each response
-            np.matmul(stacked, trajectories[:, r, :].T, out=products[:, r, :])
+        # one batched product over the responses, written straight into rows (signal, time)
+        np.matmul(stacked, trajectories.transpose(1, 2, 0), out=products.transpose(1, 0, 2))
     inputs_rows, outputs_rows = products[:m], products[m : m + p]
     slopes_rows = None if ctx.sampled else products[m + p : m + 2 * p + m]
     trajectories.flags.writeable = False
@@ -712,6 +737,12 @@ def _linear_responses(ctx: _Context, plans: list[_Plan], trajectories: np.ndarra
         all_clear = (lowest_threshold >= 1.0 and float(trajectories.max()) <= lowest_threshold
                      and float(trajectories.min()) >= -lowest_threshold)
     pieces = []
+    forced = (forcings != 0.0).any(axis=1).tolist()
+    steady_outputs = None
+    if ctx.stable and any(forced):
+        # exact steady state of every response at once: y = C x̄ + D (u₀ − K x̄)
+        law_offsets = applied[:, n:].T
+        steady_outputs = equilibria @ C.T + (law_offsets - equilibria @ K.T) @ D.T
     for r, plan in enumerate(plans):
         states = trajectories[:, r, :n]
         threshold = thresholds[r]
@@ -727,9 +758,8 @@ def _linear_responses(ctx: _Context, plans: list[_Plan], trajectories: np.ndarra
         if not ctx.stable:
             finals = np.full(p, NAN)
             final_reason = ctx.no_steady_state_reason
-        elif np.any(forcings[r] != 0.0):
-            equilibrium = equilibria[r]
-            finals = C @ equilibrium + D @ (plan.law_offset - K @ equilibrium)
+        elif forced[r]:
+            finals = steady_outputs[r]
         else:
             finals = np.zeros(p)
         pieces.append(_Piece(
@@ -765,11 +795,11 @@ def _linear_responses(ctx: _Context, plans: list[_Plan], trajectories: np.ndarra
             energies = np.zeros((used, m))
         elif ctx.sampled:
             held = chosen[:m, :, : count - 1]
-            energies = ctx.time_step * np.einsum("irk,irk->ri", held, held)
+            energies = ctx.time_step * np.vecdot(held, held).T
         else:
             if fused:
                 projected = chosen[2 * m + 2 * p :, :, : count - 1]
-                energies = np.einsum("jrk,jrk->rj", projected, projected).reshape(used, m, -1).sum(axis=2)
+                energies = np.vecdot(projected, projected).T.reshape(used, m, -1).sum(axis=2)
             elif projections is not None:
                 energies = projected_energies(trajectories if every else trajectories[:, measured], projections,
                                               count - 1)
@@ -800,18 +830,11 @@ def _response(ctx: _Context, piece: _Piece, violations: tuple, saturated: dict |
             saturated_diverged_at=None,
         )
     return Response(
-        kind=plan.kind,
-        time=piece.time,
-        states=piece.states,
-        outputs=piece.outputs,
-        inputs=piece.inputs,
-        limit_violations=violations,
-        output_metrics=piece.output_metrics,
-        input_metrics=piece.input_metrics,
-        targets=_read_only(plan.targets),
-        diverged_at=piece.diverged_at,
-        description=plan.description,
-        **saturated,
+        plan.kind, piece.time, piece.states, piece.outputs, piece.inputs,
+        saturated["saturated_states"], saturated["saturated_outputs"], saturated["saturated_inputs"],
+        violations, piece.output_metrics, piece.input_metrics,
+        saturated["saturated_output_metrics"], saturated["saturated_input_metrics"],
+        _read_only(plan.targets), piece.diverged_at, saturated["saturated_diverged_at"], plan.description,
     )
 
 
@@ -1093,8 +1116,12 @@ def simulate_responses(
     prefilter = None
     condition = NAN
     step_reason = ""
+    disturbance_forcing = plant.disturbance_matrix @ np.asarray(plant.disturbance_step)
+    to_state = disturbance_equilibrium = None
     try:
-        prefilter, condition, _ = _prefilter_with_condition(plant, K, loop)
+        # the disturbance's equilibrium comes from the same LU as the prefilter
+        prefilter, condition, to_state, disturbance_equilibrium = _prefilter_with_condition(
+            plant, K, loop, disturbance_forcing[:, None])
     except AnalysisError as error:
         step_reason = str(error)
 
@@ -1108,8 +1135,7 @@ def simulate_responses(
         )
         plans.append(_Plan("step", zeros_n, prefilter @ reference_values, zeros_n, step_targets, target_reasons,
                            "reference step on the tracked outputs with u = −Kx + N r"))
-    plans.append(_Plan("disturbance", zeros_n, zeros_m,
-                       plant.disturbance_matrix @ np.asarray(plant.disturbance_step), rest_targets, no_reasons,
+    plans.append(_Plan("disturbance", zeros_n, zeros_m, disturbance_forcing, rest_targets, no_reasons,
                        "disturbance step while regulating with u = −Kx"))
 
     # All responses share the loop: response r is z = [x; e_r] of one augmented system
@@ -1117,7 +1143,18 @@ def simulate_responses(
     # doubling chain give every trajectory exactly at the grid points.
     count_r = len(plans)
     forcings = np.array([plant.B @ plan.law_offset + plan.outside_forcing for plan in plans])
-    equilibria = _equilibria(ctx, forcings)
+    if to_state is None:
+        equilibria = _equilibria(ctx, forcings)
+    else:
+        # x̄ = M⁻¹(B u₀ + f): M⁻¹B and M⁻¹f are at hand from the prefilter's solve
+        equilibria = np.zeros_like(forcings)
+        for r, row in enumerate((forcings != 0.0).any(axis=1).tolist()):
+            if row:
+                equilibrium = equilibria[r]
+                if plans[r].law_offset.any():
+                    equilibrium += to_state @ plans[r].law_offset
+                if plans[r].outside_forcing is disturbance_forcing:
+                    equilibrium += disturbance_equilibrium[:, 0]
     size = n + count_r
     generator = np.zeros((size, size))
     generator[:n, :n] = loop

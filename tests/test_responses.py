@@ -714,3 +714,88 @@ def test_saturated_loop_of_1000_steps_exercises_pinned_and_free_steps():
     pinned_high, pinned_low, free = patterns[:, 0] == 1, patterns[:, 0] == -1, patterns[:, 0] == 0
     assert np.all(law[pinned_high, 0] > 0.5) and np.all(law[pinned_low, 0] < -0.5)
     assert np.all(np.abs(law[free, 0]) <= 0.5 + 1e-12)
+
+
+# -- the shortcuts of the per-call cost cut (issue 7): each equals an outside computation -----------------------
+def random_stable_design(rng, n, m, p, sampled):
+    """A random plant with feedthrough and its own disturbance channel, and a stabilising LQR gain from scipy."""
+    A = rng.standard_normal((n, n)) / math.sqrt(n)
+    B = rng.standard_normal((n, m))
+    if sampled:  # K = (R + BᵀPB)⁻¹BᵀPA from the discrete Riccati equation (textbook LQR)
+        P = scipy.linalg.solve_discrete_are(A, B, np.eye(n), np.eye(m))
+        K = np.linalg.solve(np.eye(m) + B.T @ P @ B, B.T @ P @ A)
+    else:  # K = R⁻¹BᵀP from the continuous Riccati equation
+        K = B.T @ scipy.linalg.solve_continuous_are(A, B, np.eye(n), np.eye(m))
+    plant = Plant(A=A, B=B, C=rng.standard_normal((p, n)), D=0.1 * rng.standard_normal((p, m)),
+                  sample_time=0.1 if sampled else None, disturbance_matrix=rng.standard_normal((n, 2)),
+                  disturbance_step=[0.5, -1.5], tracked_outputs=tuple(range(min(p, m))))
+    return plant, K
+
+
+@pytest.mark.parametrize("sampled", [False, True])
+@pytest.mark.parametrize("n, m, p", [(3, 1, 2), (6, 2, 3), (18, 2, 2)])  # 18 states: the other side of n = 16
+def test_final_values_and_prefilter_equal_the_steady_state_solved_by_scipy(rng, sampled, n, m, p):
+    plant, K = random_stable_design(rng, n, m, p, sampled)
+    result = simulate_responses(plant, K)
+    A, B, C, D, E = plant.A, plant.B, plant.C, plant.D, plant.disturbance_matrix
+    system = np.eye(n) - (A - B @ K) if sampled else -(A - B @ K)
+    tracked = list(plant.tracked_outputs)
+    # Reference: scipy.linalg.solve of the equilibrium 0 = (A − BK)x̄ + f (x̄ = (A − BK)x̄ + f sampled), the
+    # steady-state gain M = (C − DK)_t M⁻¹B + D_t and N = pinv(M) (textbook static prefilter), y = Cx̄ + D(u₀ − Kx̄)
+    gain = (C - D @ K)[tracked] @ scipy.linalg.solve(system, B) + D[tracked]
+    prefilter = scipy.linalg.pinv(gain)
+    np.testing.assert_allclose(result.prefilter, prefilter, rtol=1e-9, atol=1e-12 * np.abs(prefilter).max())
+    u0 = prefilter @ np.ones(len(tracked))
+    step_state = scipy.linalg.solve(system, B @ u0)
+    step_final = C @ step_state + D @ (u0 - K @ step_state)
+    disturbance_state = scipy.linalg.solve(system, E @ np.array([0.5, -1.5]))
+    disturbance_final = (C - D @ K) @ disturbance_state
+    found_step = [metric.final_value for metric in result.step.output_metrics]
+    found_disturbance = [metric.final_value for metric in result.disturbance.output_metrics]
+    np.testing.assert_allclose(found_step, step_final, rtol=1e-9, atol=1e-10 * np.abs(step_final).max())
+    np.testing.assert_allclose(found_disturbance, disturbance_final, rtol=1e-9,
+                               atol=1e-10 * np.abs(disturbance_final).max())
+    # the tracked outputs settle on the reference (definition of the prefilter)
+    np.testing.assert_allclose(np.array(found_step)[tracked], 1.0, atol=1e-9)
+
+
+def test_prefilter_refusal_still_uses_the_exact_condition_number_near_the_limit():
+    # A pole 1e-15 from s = 0: cond₂ of the equilibrium matrix ≈ 1e15 passes the refusal limit 1/(100·n·eps),
+    # far or near the Frobenius bound (numpy.linalg.cond as the reference for the condition number).
+    A = np.array([[-1e-15, 0.0], [0.0, -1.0]])
+    plant = Plant(A=A, B=np.eye(2), C=np.eye(2))
+    assert np.linalg.cond(A) * 2 * np.finfo(float).eps * 100 >= 1.0
+    with pytest.raises(AnalysisError, match=r"pole at s = 0 \(closest pole s = -1e-15\)"):
+        reference_prefilter(plant, np.zeros((2, 2)))
+
+
+@settings(max_examples=40, deadline=None)
+@given(seed=st.integers(0, 2**32 - 1), size=st.integers(2, 12), rows=st.integers(1, 6))
+def test_peak_candidates_are_the_local_maxima_scipy_finds_near_each_top(seed, size, rows):
+    from gainboard.core._metrics import _peak_candidates
+
+    rng = np.random.default_rng(seed)
+    count = 5 * size
+    # coarse levels make plateaus and repeated tops, the cases where ≥ and > part ways
+    signals = np.round(rng.standard_normal((rows, count)).cumsum(axis=1), 1)
+    tops, scales = signals.max(axis=1), 1e2 * np.abs(signals).max(axis=1) + 1e-3
+    padded = np.full((rows, count + 2), -np.inf)
+    padded[:, 1:-1] = signals
+    found = _peak_candidates(padded, tops.tolist(), scales.tolist())
+    for row, top, scale, candidates in zip(signals, tops, scales, found):
+        # Reference: scipy.signal.argrelextrema with ≥ and mode "clip" (an end point is compared with its one
+        # neighbour), then the points within 10⁻³·scale of the top
+        local = scipy.signal.argrelextrema(row, np.greater_equal, mode="clip")[0]
+        assert candidates == [int(k) for k in local if row[k] >= top - 1e-3 * scale]
+
+
+def test_power_growth_bound_equals_the_norms_of_the_matrix_powers(rng):
+    from gainboard.core._propagation import _power_growth
+
+    matrix = 3.0 * rng.standard_normal((7, 7)) + 20.0 * np.eye(7, k=1)  # far from normal
+    # Reference: numpy.linalg.matrix_power and numpy.linalg.norm(·, 1) in the formula of Al-Mohy & Higham 2009,
+    # Theorem 4.2: min(‖M‖₁, max(‖M^p‖^{1/p}, ‖M^{p+1}‖^{1/(p+1)}) for p = 2 … 5)
+    roots = {p: np.linalg.norm(np.linalg.matrix_power(matrix, p), 1) ** (1.0 / p) for p in range(2, 7)}
+    expected = min(np.linalg.norm(matrix, 1), *(max(roots[p], roots[p + 1]) for p in range(2, 6)))
+    assert _power_growth(matrix) == pytest.approx(expected, rel=1e-12)
+
