@@ -86,7 +86,6 @@ class PoleMap:
         self.region_source = ColumnDataSource({"xs": [], "ys": []})
         self.unit_disk_source = ColumnDataSource({"x": [], "y": []})
         self.locus_source = ColumnDataSource({"x0": [], "y0": [], "x1": [], "y1": [], "gain": []})
-        self._drawn_locus = None  # (entry, gains, poles) last sent to the browser
         self.arrow_source = ColumnDataSource({"x_start": [], "y_start": [], "x_end": [], "y_end": []})
         self.open_source = ColumnDataSource({"x": [], "y": []})
         self.pinned_source = ColumnDataSource({"x": [], "y": []}, name="pinned_poles")
@@ -280,21 +279,16 @@ class PoleMap:
     def _refresh_locus(self, evaluation) -> None:
         locus = evaluation.selected_locus
         if locus is None or len(locus.gains) < 2:
-            self._drawn_locus = None
             update_source(self.locus_source, {"x0": [], "y0": [], "x1": [], "y1": [], "gain": []})
             return
         poles = np.asarray(locus.poles, dtype=complex)
         gains = np.asarray(locus.gains, dtype=float)
         # The core adds the current value's sample to the locus; it is left out of the drawing
         # (the closed-loop markers show it), so the drawn locus stays the same while only the
-        # selected entry moves and is not sent to the browser again on every slider step.
+        # selected entry moves and update_source does not send it again on every slider step.
         inside = np.flatnonzero(gains[1:-1] == locus.current_value) + 1
         if inside.size == 1:
             poles, gains = np.delete(poles, inside, axis=0), np.delete(gains, inside)
-        if (self._drawn_locus is not None and self._drawn_locus[0] == locus.entry
-                and np.array_equal(self._drawn_locus[1], gains) and np.array_equal(self._drawn_locus[2], poles)):
-            return
-        self._drawn_locus = (locus.entry, gains, poles)
         start, end = poles[:-1, :], poles[1:, :]
         # one segment per branch and step, coloured by the gain at its start
         segment_gain = np.repeat(gains[:-1, None], poles.shape[1], axis=1)
