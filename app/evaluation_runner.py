@@ -64,6 +64,9 @@ def evaluate_request(request: EvaluationRequest):
 class InlineRunner:
     """Evaluates at once, in the caller's thread (a state used from Python, the tests)."""
 
+    #: Results (and failures) are delivered before ``submit`` returns.
+    synchronous = True
+
     def submit(self, request: EvaluationRequest, deliver: Delivery) -> None:
         try:
             evaluation = evaluate_request(request)

@@ -206,8 +206,8 @@ class DesignState(LoadingMixin, LqrMixin, param.Parameterized):
                 # the newest request failed: go back to the inputs of the design shown
                 with param.discard_events(self):
                     self.param.update(**self._shown_inputs)
-                if not isinstance(self.runner, InlineRunner):
-                    self._report_failure(error)
+                if not getattr(self.runner, "synchronous", False):
+                    self._report_failure(error)  # no caller is waiting to report it
             return
         self._shown_sequence = request.sequence
         self._shown_inputs = request.inputs

@@ -29,6 +29,7 @@ import panel as pn
 from gainboard import core
 
 from .autosave import AutosaveStore
+from .evaluation_pool import PooledRunner, shared_pool
 from .refresh_policy import PLOT_VIEWS, RefreshPolicy, detail_options
 from .room_link import RoomLink
 from .rooms import ROOM_PARAMETER
@@ -63,6 +64,8 @@ _LIVE_LOCK = threading.Lock()
 TAB_HEIGHT = 590
 #: Height of the K readout and history buttons above the gain entries.
 GAIN_BAR_HEIGHT = 150
+#: An evaluation still running after this many seconds is reported to the user.
+EVALUATION_BUDGET_SECONDS = 10.0
 
 log = logging.getLogger(__name__)
 
@@ -138,7 +141,10 @@ class Workbench:
             "header": lambda evaluation: self.page_header.refresh(evaluation, self.room_link.header_html()),
         }
         if document is not None:
+            # Served: the tables wait for a pause, and every evaluation runs off the event loop.
             state.refresh = served_refresh_policy()
+            state.runner = PooledRunner(shared_pool(), self.run_in_session, on_overdue=self._evaluation_overdue,
+                                        budget=EVALUATION_BUDGET_SECONDS, call_later=self._call_later)
 
         state.param.watch(self._on_evaluation, "evaluation")
         state.param.watch(self._on_comparison, ["pinned", "lqr_poles"])
@@ -275,6 +281,16 @@ class Workbench:
             in_own_document()
         else:
             document.add_next_tick_callback(in_own_document)
+
+    def _call_later(self, seconds: float, function) -> None:
+        """Run ``function`` in this session after ``seconds`` (from this session's own loop)."""
+        self.document.add_timeout_callback(lambda: self.run_in_session(function, at_once=True),
+                                           max(1, int(1000 * seconds)))
+
+    def _evaluation_overdue(self, request) -> None:
+        self.state.show_message(
+            f"This design has taken more than {EVALUATION_BUDGET_SECONDS:g} s to evaluate (a large plant?); "
+            "the page shows the last design evaluated and follows as soon as the evaluation ends.", "note")
 
     def _guarded(self, function) -> None:
         try:
