@@ -318,6 +318,19 @@ class DesignState(LoadingMixin, LqrMixin, param.Parameterized):
             return self.set_gain(gain, live=live)
         return False
 
+    def nudge_entry(self, row: int, col: int, steps: int, *, coarse: bool = False) -> bool:
+        """Move k[row, col] by ``steps`` arrow-key presses: a fine step relative to its value (``coarse``: 10×).
+
+        A step of a gesture (arrow presses in a burst make one undo step, closed by
+        :meth:`end_gesture`); the rule is the core's :func:`~gainboard.core.nudged_value`.
+        """
+        with self._reporting(f"nudge entry k{row + 1}{col + 1}"):
+            self._check_entry(row, col)
+            ranges = self.evaluation.view_ranges.sliders if self.evaluation.view_ranges is not None else {}
+            value = core.nudged_value(float(self.gain[row, col]), ranges.get((row, col)), steps, coarse)
+            return self.set_entry(row, col, value, live=True)
+        return False
+
     def _check_entry(self, row: int, col: int) -> None:
         m, n = self.gain.shape
         if not (0 <= row < m and 0 <= col < n):

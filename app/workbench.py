@@ -41,7 +41,7 @@ from .views.design_bar import DesignBar
 from .views.entry_choice import EntryChoice
 from .views.file_panel import FilePanel
 from .views.gain_sliders import GainSliders
-from .views.keyboard import TabKeys
+from .views.keyboard import NudgeKeys, TabKeys
 from .views.lqr_panel import LqrPanel
 from .views.page_header import PageHeader
 from .views.plant_panel import PlantPanel
@@ -132,6 +132,7 @@ class Workbench:
             "response_texts": self.responses.refresh_texts,
             "entry_choice": self.entry_choice.refresh,
             "sliders": self.sliders.refresh,
+            "slider_values": self.sliders.refresh_values,
             "design_bar": self.design_bar.refresh,
             "pole_table": self.pole_table.refresh,
             "checks": self.checks.refresh,
@@ -201,8 +202,10 @@ class Workbench:
             ("Poles", scrolling(self.pole_table.panel, 478)),
             width=480, margin=(0, 5), dynamic=False,
         )
+        nudges = NudgeKeys(on_nudge=self._nudge, on_end=self.state.end_gesture, width=0, height=0, margin=0)
         return pn.Column(
             TabKeys(width=0, height=0, margin=0),
+            nudges,
             *self.page_header.panels,
             pn.Row(left, centre, right, margin=0),
             margin=0,
@@ -251,6 +254,10 @@ class Workbench:
                 self._schedule_catch_up()
 
         self.document.add_timeout_callback(catch_up, max(1, int(1000 * due)))
+
+    def _nudge(self, row: int, col: int, steps: int, coarse: bool) -> None:
+        # Not through the latest-only scheduler: each press counts, from the value the last one left.
+        self._guarded(lambda: self.state.nudge_entry(row, col, steps, coarse=coarse))
 
     def _on_comparison(self, *events) -> None:
         evaluation = self.state.evaluation

@@ -45,6 +45,9 @@ __all__ = [
     "ONE_SLIDER_PER_ENTRY_UP_TO",
     "round_up_to_nice",
     "slider_step",
+    "nudged_value",
+    "FINE_NUDGE",
+    "COARSE_NUDGE",
     "view_ranges",
 ]
 
@@ -52,6 +55,10 @@ __all__ = [
 ONE_SLIDER_PER_ENTRY_UP_TO = 10**9  # every entry, until the workbench shows a large K as a matrix
 #: Slider steps across a range (about; the step is rounded to 1-2-5).
 STEPS_PER_RANGE = 400
+#: An arrow key moves an entry by this fraction of its own value (common practice, no source) ...
+FINE_NUDGE = 1e-3
+#: ... and by this fraction with the coarse modifier (Shift, or Page Up / Page Down).
+COARSE_NUDGE = 1e-2
 #: Outside a gesture, a slider range is renewed when the value is this close (fraction) to an end.
 EDGE_FRACTION = 0.04
 #: Width : height of the pole map's frame (its pixel size in the workbench: 395 × 375).
@@ -175,6 +182,32 @@ def slider_step(span: float) -> float:
     (2.0, 5.0, 0.001)
     """
     return round_up_to_nice(span / STEPS_PER_RANGE, factors=(1.0, 2.0, 5.0))
+
+
+def nudged_value(value: float, slider_range: SliderRange | None, steps: int, coarse: bool = False) -> float:
+    """The value after ``steps`` arrow-key presses (negative: down): a relative step from the value itself.
+
+    A press moves the value by FINE_NUDGE (coarse: COARSE_NUDGE) of its own size, never
+    to the slider's grid, so a value typed to many digits keeps them. A value smaller
+    than one slider step (zero would never move) moves by one slider step instead
+    (coarse: ten).
+
+    Examples
+    --------
+    >>> nudged_value(-248.949, None, 1)
+    -248.700051
+    >>> nudged_value(-248.949, SliderRange(-6000.0, 5000.0, 50.0), -1, coarse=True)
+    -251.43849
+    >>> nudged_value(0.0, SliderRange(-5.0, 5.0, 0.05), 1)
+    0.05
+    """
+    if slider_range is not None and abs(value) < slider_range.step:
+        step = slider_range.step * (10.0 if coarse else 1.0)
+    else:
+        size = abs(value) if value != 0.0 else 1.0
+        step = (COARSE_NUDGE if coarse else FINE_NUDGE) * size
+    # 12 significant digits of the step: −248.949 + 0.248949 is −248.700051, not …0510000001
+    return float(f"{value + steps * float(f'{step:.12g}'):.15g}")
 
 
 def _whole_steps(low: float, high: float, step: float) -> tuple[float, float]:

@@ -161,6 +161,15 @@ class _EntryControls:
 
     # refreshing from an evaluation
 
+    def show_number(self, value: float) -> None:
+        if self.number.value is None or float(self.number.value) != value:
+            self.number.value = value
+
+    def show_value(self, value: float) -> None:
+        self.show_number(value)
+        if float(self.slider.value) != value:
+            self.slider.value = min(max(value, self.slider.start), self.slider.end)
+
     def show(self, evaluation, value: float, selected: bool) -> None:
         plant = evaluation.plant
         slider_range = evaluation.view_ranges.sliders[(self.row, self.col)]
@@ -172,13 +181,10 @@ class _EntryControls:
             + (f'<br><span class="gb-units">{escape(units)}</span>' if units else "")
             + "</div>"
         )
-        if self.number.value is None or float(self.number.value) != value:
-            self.number.value = value
         low, high = slider_range.low, slider_range.high
         if self.slider.start != low or self.slider.end != high:
             self.slider.param.update(start=low, end=high, step=slider_range.step)
-        if float(self.slider.value) != value:
-            self.slider.value = min(max(value, low), high)
+        self.show_value(value)
         self.locus_button.color = "primary" if selected else "light"
         text = _interval_text(self.symbol, intervals, high - low)
         badge = ""
@@ -222,6 +228,21 @@ class GainSliders:
         self._controls = {(i, j): _EntryControls(self, i, j) for i in range(m) for j in range(n)}
         self.panel.objects = [c.panel for c in self._controls.values()]
         self._shape = shape
+
+    def refresh_values(self, evaluation) -> None:
+        """Only the values of K in the number boxes, during a gesture (the handles and strips follow on a pause).
+
+        A handle is not moved here: during a drag the evaluation shown may lag the mouse, and
+        setting the slider would pull the handle back under it.
+        """
+        if evaluation.gain.shape != self._shape:
+            return
+        self.syncing = True
+        try:
+            for (i, j), controls in self._controls.items():
+                controls.show_number(float(evaluation.gain[i, j]))
+        finally:
+            self.syncing = False
 
     def refresh(self, evaluation) -> None:
         """Show K, the ranges and the stable intervals of ``evaluation``."""

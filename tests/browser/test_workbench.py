@@ -73,6 +73,28 @@ def test_moving_a_gain_slider_shows_the_poles_the_core_computes(workbench):
     workbench.screenshot("03-slider-moved")
 
 
+def test_an_arrow_key_nudges_a_gain_by_a_small_relative_step_not_to_the_slider_grid(workbench):
+    # Issue 13 item 5: one press moved −248.949 to the grid value −245. Now a press moves by a
+    # thousandth of the value itself, Shift by a hundredth (the project's own rule, core.nudged_value).
+    plant = reference_plant()
+    workbench.set_gain_text("[[-248.949, 55, 8]]")
+    workbench.wait_until_idle()
+    handle = workbench.page.locator(".gb-slider-1-1 .noUi-handle")
+    handle.focus()
+    handle.press("ArrowRight")
+    settled = workbench.settled_snapshot(quiet_ms=600)  # the burst of presses ends 0.4 s after the key
+    assert settled["gain"][0, 0] == pytest.approx(-248.949 + 0.248949, rel=1e-12)
+    np.testing.assert_array_equal(settled["gain"][0, 1:], [55.0, 8.0])
+    handle.press("Shift+ArrowLeft")
+    settled = workbench.settled_snapshot(quiet_ms=600)
+    assert settled["gain"][0, 0] == pytest.approx(-248.700051 - 2.48700051, rel=1e-12)
+    # numpy's eigenvalues of A − BK are the outside reference for the poles shown.
+    assert matched_distance(settled["poles"], numpy_closed_loop_poles(plant, settled["gain"])) < 1e-8
+    # Each burst of presses is one undo step.
+    workbench.page.get_by_role("button", name="↶ Undo").click()
+    workbench.wait_for(lambda: workbench.gain()[0, 0] == pytest.approx(-248.700051, rel=1e-12), "undo of one burst")
+
+
 # Counts changes of the outputs plot's data in the page (the plot is redrawn on each).
 _COUNT_PLOT_UPDATES = """() => {
     window.__plotUpdates = 0;
