@@ -40,7 +40,7 @@ from .theme import PAGE_CSS, PALETTE, TABLE_CSS, format_gain_text
 from .views.design_bar import DesignBar
 from .views.entry_choice import EntryChoice
 from .views.file_panel import FilePanel
-from .views.gain_sliders import GainSliders
+from .views.gain_matrix import GainEntries
 from .views.keyboard import NudgeKeys, TabKeys
 from .views.lqr_panel import LqrPanel
 from .views.page_header import PageHeader
@@ -114,7 +114,8 @@ class Workbench:
         self.page_header = PageHeader(state, on_restore=self.restore_offered, on_discard=self.discard_offered)
         self.pole_map = PoleMap(state, self.scheduler)
         self.entry_choice = EntryChoice(state, on_fit=self.pole_map.fit_view)
-        self.sliders = GainSliders(state, self.scheduler)
+        self.gains = GainEntries(state, self.scheduler)
+        self.sliders = self.gains.sliders  # one slider per entry (small K); the matrix is self.gains.matrix
         self.design_bar = DesignBar(state)
         self.responses = ResponsePlots(state)
         self.pole_table = PoleTable(state)
@@ -131,8 +132,8 @@ class Workbench:
             "response_plots": lambda evaluation: self.responses.refresh(evaluation, texts=False),
             "response_texts": self.responses.refresh_texts,
             "entry_choice": self.entry_choice.refresh,
-            "sliders": self.sliders.refresh,
-            "slider_values": self.sliders.refresh_values,
+            "sliders": self.gains.refresh,
+            "slider_values": self.gains.refresh_values,
             "design_bar": self.design_bar.refresh,
             "pole_table": self.pole_table.refresh,
             "checks": self.checks.refresh,
@@ -179,7 +180,7 @@ class Workbench:
         gains = pn.Column(
             self.design_bar.panel,
             label("gain entries"),
-            scrolling(self.sliders.panel, 370, TAB_HEIGHT - GAIN_BAR_HEIGHT),
+            scrolling(self.gains.panel, 370, TAB_HEIGHT - GAIN_BAR_HEIGHT),
             margin=0, width=370,
         )
         left = pn.Tabs(

@@ -19,7 +19,7 @@ from ..scheduling import guarded
 from ..theme import PALETTE, entry_symbol, format_number
 from .html_box import HtmlBox
 
-__all__ = ["GainSliders", "PromptSlider", "entry_units"]
+__all__ = ["GainSliders", "EntryControls", "PromptSlider", "entry_units"]
 
 SLIDER_WIDTH = 320
 STRIP_HEIGHT = 10
@@ -102,13 +102,20 @@ def interval_strip_svg(low: float, high: float, value: float, intervals, width: 
     )
 
 
-class _EntryControls:
-    """Widgets of one gain entry."""
+class EntryControls:
+    """Widgets of one gain entry: name and units, number box, locus button, slider and stable strip.
 
-    def __init__(self, owner: "GainSliders", row: int, col: int):
+    ``owner`` gives ``state``, ``scheduler``, ``css`` and the ``syncing`` flag (set while the
+    owner shows an evaluation, so that the widgets' own echoes are not taken as input).
+    The large slider of the matrix view is one of these, moved between entries by
+    :meth:`retarget`.
+    """
+
+    def __init__(self, owner, row: int, col: int, *, slider_width: int = SLIDER_WIDTH):
         self.owner, self.row, self.col = owner, row, col
         symbol = entry_symbol(row, col)
         self.symbol = symbol
+        self.slider_width = slider_width
         self.label = pn.pane.HTML("", width=160, margin=(2, 4, 0, 4), stylesheets=[owner.css])
         self.number = pn.widgets.FloatInput(
             value=0.0, width=122, margin=(2, 4), label="", css_classes=[f"gb-number-{row + 1}-{col + 1}"],
@@ -117,10 +124,10 @@ class _EntryControls:
         self.locus_button = pn.widgets.Button(label="locus", color="light", width=56, margin=(2, 0),
                                               description=f"Show the locus of {symbol} on the pole map")
         self.slider = PromptSlider(
-            start=-1.0, end=1.0, value=0.0, step=0.01, show_value=False, label="", width=SLIDER_WIDTH,
+            start=-1.0, end=1.0, value=0.0, step=0.01, show_value=False, label="", width=slider_width,
             margin=(0, 4, 0, 8), css_classes=[f"gb-slider-{row + 1}-{col + 1}"], bar_color=PALETTE["closed_loop"],
         )
-        self.strip = HtmlBox(css=owner.css, width=SLIDER_WIDTH + 10, margin=(0, 4, 0, 8),
+        self.strip = HtmlBox(css=owner.css, width=slider_width + 10, margin=(0, 4, 0, 8),
                              css_classes=[f"gb-strip-{row + 1}-{col + 1}"])
         self.panel = pn.Column(
             pn.Row(self.label, self.number, self.locus_button, margin=0),
@@ -133,7 +140,18 @@ class _EntryControls:
         self.slider.param.watch(guard(self._slider_moved), "value")
         self.slider.param.watch(guard(self._slider_released), "value_throttled")
         self.number.param.watch(guard(self._typed), "value")
-        self.locus_button.on_click(lambda event: owner.state.select_entry(row, col))
+        self.locus_button.on_click(lambda event: owner.state.select_entry(self.row, self.col))
+
+    def retarget(self, row: int, col: int) -> None:
+        """Show entry (row, col) from now on (the tests and the key listener find it by its classes)."""
+        if (row, col) == (self.row, self.col):
+            return
+        self.owner.scheduler.discard(("entry", self.row, self.col))
+        self.row, self.col, self.symbol = row, col, entry_symbol(row, col)
+        self.number.css_classes = [f"gb-number-{row + 1}-{col + 1}"]
+        self.slider.css_classes = [f"gb-slider-{row + 1}-{col + 1}"]
+        self.strip.panel.css_classes = [f"gb-strip-{row + 1}-{col + 1}"]
+        self.locus_button.description = f"Show the locus of {self.symbol} on the pole map"
 
     # user actions: only ever set state
 
@@ -192,7 +210,7 @@ class _EntryControls:
             badge = ('<span class="gb-pass">✓ stable now</span> · ' if intervals.current_is_stable
                      else '<span class="gb-fail">✗ unstable now</span> · ')
         self.strip.object = (
-            f'<div>{interval_strip_svg(low, high, value, intervals)}</div>'
+            f'<div>{interval_strip_svg(low, high, value, intervals, self.slider_width)}</div>'
             f'<div class="gb-interval-text">{badge}{text}</div>'
         )
 
@@ -219,13 +237,13 @@ class GainSliders:
         self.state = state
         self.scheduler = scheduler
         self.syncing = False
-        self._controls: dict[tuple[int, int], _EntryControls] = {}
+        self._controls: dict[tuple[int, int], EntryControls] = {}
         self._shape = None
         self.panel = pn.Column(margin=0, sizing_mode="stretch_width")
 
     def _build(self, shape) -> None:
         m, n = shape
-        self._controls = {(i, j): _EntryControls(self, i, j) for i in range(m) for j in range(n)}
+        self._controls = {(i, j): EntryControls(self, i, j) for i in range(m) for j in range(n)}
         self.panel.objects = [c.panel for c in self._controls.values()]
         self._shape = shape
 
