@@ -42,7 +42,7 @@ import weakref
 from collections import OrderedDict
 from typing import Callable
 
-from .evaluation_runner import EvaluationRequest, evaluate_request
+from .evaluation_runner import EvaluationRequest, Placed, evaluate_request
 
 __all__ = ["EvaluationPool", "PooledRunner", "DEFAULT_WORKERS", "DEFAULT_BUDGET_SECONDS", "shared_pool"]
 
@@ -92,7 +92,10 @@ def _evaluate_in_worker(token: int, plant, request: EvaluationRequest):
     request = dataclasses.replace(request, plant=kept)
     if request.refine is not None:
         request = dataclasses.replace(request, refine=dataclasses.replace(request.refine, plant=kept))
-    return _without_state_trajectories(evaluate_request(request))
+    result = evaluate_request(request)
+    if isinstance(result, Placed):
+        return Placed(result.placement, _without_state_trajectories(result.evaluation))
+    return _without_state_trajectories(result)
 
 
 def _worker_start() -> None:
@@ -159,7 +162,11 @@ class EvaluationPool:
             except BaseException as error:  # handed on to the session
                 result.set_exception(error)
                 return
-            result.set_result(dataclasses.replace(evaluation, plant=request.plant))
+            if isinstance(evaluation, Placed):
+                result.set_result(Placed(evaluation.placement,
+                                         dataclasses.replace(evaluation.evaluation, plant=request.plant)))
+            else:
+                result.set_result(dataclasses.replace(evaluation, plant=request.plant))
 
         future.add_done_callback(with_own_plant)
         return result

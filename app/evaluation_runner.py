@@ -19,7 +19,7 @@ from gainboard import core
 
 from .refresh_policy import Detail
 
-__all__ = ["EvaluationRequest", "Delivery", "InlineRunner", "evaluate_request"]
+__all__ = ["EvaluationRequest", "Placed", "Delivery", "InlineRunner", "evaluate_request"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -39,6 +39,9 @@ class EvaluationRequest:
         The state's inputs this evaluation describes (restored if a newer one fails).
     refine : gainboard.core.DesignEvaluation or None
         When set, the request only adds the stable intervals of every entry to this evaluation.
+    targets : tuple of complex or None
+        When set, K is first computed by pole assignment for these closed-loop poles (a pole
+        drag, typed targets) and the result is a :class:`Placed`.
     """
 
     sequence: int
@@ -48,6 +51,15 @@ class EvaluationRequest:
     detail: Detail
     inputs: dict
     refine: object | None = None
+    targets: tuple | None = None
+
+
+@dataclass(frozen=True, eq=False)
+class Placed:
+    """The result of a request with targets: the pole assignment and the evaluation of its K."""
+
+    placement: object
+    evaluation: object
 
 
 #: ``deliver(request, evaluation, error)``: exactly one of evaluation and error is None.
@@ -55,9 +67,12 @@ Delivery = Callable[[EvaluationRequest, object, BaseException], None]
 
 
 def evaluate_request(request: EvaluationRequest):
-    """The computation itself (the same in every runner): one call of the core."""
+    """The computation itself (the same in every runner): one or two calls of the core."""
     if request.refine is not None:
         return core.with_all_entry_intervals(request.refine)
+    if request.targets is not None:
+        placement = core.assign_poles(request.plant, list(request.targets))
+        return Placed(placement, core.evaluate_design(request.plant, placement.gain, request.options))
     return core.evaluate_design(request.plant, request.gain, request.options)
 
 

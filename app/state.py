@@ -36,7 +36,7 @@ import param
 from gainboard import core
 
 from .design_file import now_timestamp
-from .evaluation_runner import EvaluationRequest, InlineRunner
+from .evaluation_runner import EvaluationRequest, InlineRunner, Placed
 from .gain_history import GainLog, UndoHistory
 from .plant_catalogue import bundled_plant_catalogue, plant_from_reference  # noqa: F401 - their old home
 from .pole_drag import targets_after_drag
@@ -72,6 +72,9 @@ class DesignState(LoadingMixin, LqrMixin, param.Parameterized):
         intervals, none left for a pause: a state without a page to keep fluid).
     runner : optional
         Where evaluations run (default: at once, :class:`~gainboard.app.evaluation_runner.InlineRunner`).
+    first_detail : Detail
+        Level of detail of the first evaluation, made at once (a served page opens with a
+        STEP evaluation and asks for the complete one off the event loop: :meth:`complete`).
     """
 
     plant = param.ClassSelector(class_=core.Plant, doc="The checked plant the gain is designed for.")
@@ -113,7 +116,8 @@ class DesignState(LoadingMixin, LqrMixin, param.Parameterized):
                              doc="Counts evaluations shown; views and tests use it to know an update happened.")
 
     def __init__(self, plant: core.Plant, *, plant_label: str = "", plant_text: str = "", gain=None,
-                 refresh: RefreshPolicy | None = None, runner=None, **params):
+                 refresh: RefreshPolicy | None = None, runner=None, first_detail: Detail = Detail.COMPLETE,
+                 **params):
         self.history = UndoHistory()
         self.gain_log = GainLog()
         self.refresh = refresh if refresh is not None else RefreshPolicy(texts_at_least_every=0.0)
@@ -123,6 +127,7 @@ class DesignState(LoadingMixin, LqrMixin, param.Parameterized):
         self._sequence = 0  # requests made
         self._shown_sequence = 0  # the request whose evaluation is shown
         self._shown_inputs: dict = {}
+        self._on_placed: dict = {}  # request sequence -> what takes a pole assignment's K over
         #: An object with get/put (see gainboard.app.rooms.SharedEvaluations) shared by the sessions
         #: of a live room, so that a design shown in several sessions is evaluated once; None: no sharing.
         self.evaluation_cache = None
@@ -135,9 +140,9 @@ class DesignState(LoadingMixin, LqrMixin, param.Parameterized):
         )
         # a broken plant at start-up is the caller's error: the first evaluation runs here and raises
         self._shown_inputs = self._inputs()
-        evaluation = core.evaluate_design(plant, starting_gain, self._options(Detail.COMPLETE, previous=None))
+        evaluation = core.evaluate_design(plant, starting_gain, self._options(first_detail, previous=None))
         with param.edit_constant(self):
-            self.param.update(evaluation=evaluation, detail=Detail.COMPLETE, revision=1)
+            self.param.update(evaluation=evaluation, detail=first_detail, revision=1)
         self._reset_lqr_weights()
         self.gain_log.record(self.plant, self.gain)
         if note:
@@ -174,15 +179,23 @@ class DesignState(LoadingMixin, LqrMixin, param.Parameterized):
             failure, self._failure = self._failure, None
             raise failure
 
-    def _request_evaluation(self, detail: Detail, refine=None) -> None:
+    def _request_evaluation(self, detail: Detail, refine=None, targets=None, on_placed=None) -> None:
+        """Ask the runner for one evaluation of the current inputs at ``detail`` (see EvaluationRequest).
+
+        ``targets``: compute K by pole assignment first; ``on_placed(placement)`` then takes
+        the new K over (inputs, history) just before its evaluation is shown.
+        """
         self._sequence += 1
         shown = self.evaluation
         same_plant = shown is not None and shown.plant is self.plant
         options = self._options(detail, previous=shown.view_ranges if same_plant else None)
         request = EvaluationRequest(sequence=self._sequence, plant=self.plant, gain=np.array(self.gain, copy=True),
-                                    options=options, detail=detail, inputs=self._inputs(), refine=refine)
+                                    options=options, detail=detail, inputs=self._inputs(), refine=refine,
+                                    targets=None if targets is None else tuple(complex(t) for t in targets))
+        if targets is not None:
+            self._on_placed[request.sequence] = on_placed
         cache, key = self.evaluation_cache, None
-        if cache is not None and refine is None:
+        if cache is not None and refine is None and targets is None:
             key = (id(self.plant), id(self.specs), self.gain.shape, self.gain.tobytes(), self.selected_entry, detail)
             found = cache.get(key, self.plant, self.specs)
             if found is not None:
@@ -198,6 +211,9 @@ class DesignState(LoadingMixin, LqrMixin, param.Parameterized):
 
     def _deliver(self, request: EvaluationRequest, evaluation, error) -> None:
         """Show a delivered evaluation, unless a newer one is shown already."""
+        on_placed = self._on_placed.pop(request.sequence, None)
+        for older in [sequence for sequence in self._on_placed if sequence < request.sequence]:
+            del self._on_placed[older]  # superseded while waiting: never delivered
         if request.sequence < self._shown_sequence:
             return  # superseded: a newer request's result is on screen
         if error is not None:
@@ -207,19 +223,33 @@ class DesignState(LoadingMixin, LqrMixin, param.Parameterized):
                 with param.discard_events(self):
                     self.param.update(**self._shown_inputs)
                 if not getattr(self.runner, "synchronous", False):
-                    self._report_failure(error)  # no caller is waiting to report it
+                    self._report_failure(error, "place the poles there" if request.targets is not None else "")
+                    if request.targets is not None:
+                        if request.detail is Detail.COMPLETE:
+                            self.end_gesture()  # a refused drop: the drag so far is one undo step
+                        self.param.trigger("evaluation")  # the pole map puts the dragged marker back
             return
+        inputs = request.inputs
+        if isinstance(evaluation, Placed):
+            placed, evaluation = evaluation, evaluation.evaluation
+            inputs = dict(inputs, gain=placed.evaluation.gain)
+            if request.sequence == self._sequence:  # a newer change would be overwritten
+                with param.discard_events(self):
+                    self.gain = np.array(placed.evaluation.gain, copy=True)
+            if on_placed is not None:
+                on_placed(placed.placement)
         self._shown_sequence = request.sequence
-        self._shown_inputs = request.inputs
+        self._shown_inputs = inputs
         with param.edit_constant(self):
             self.param.update(evaluation=evaluation, detail=request.detail, revision=self.revision + 1)
 
-    def _report_failure(self, error: BaseException) -> None:
+    def _report_failure(self, error: BaseException, action: str = "") -> None:
+        action = action or "evaluate this design"
         if isinstance(error, core.GainboardError):
-            self._say(f"Could not evaluate this design: {error}", "error")
+            self._say(f"Could not {action}: {error}", "error")
         else:
             log.error("an evaluation failed", exc_info=error)
-            self._say(f"Could not evaluate this design: unexpected {type(error).__name__}: {error}. "
+            self._say(f"Could not {action}: unexpected {type(error).__name__}: {error}. "
                       "The design shown was kept.", "error")
 
     def catch_up(self) -> bool:
@@ -231,6 +261,11 @@ class DesignState(LoadingMixin, LqrMixin, param.Parameterized):
             return False
         self._request_evaluation(Detail.PAUSE, refine=self.evaluation)
         return True
+
+    def complete(self) -> None:
+        """Evaluate the design shown at COMPLETE detail (nothing to do when it is complete already)."""
+        if self.detail < Detail.COMPLETE:
+            self._request_evaluation(self.refresh.release())
 
     @property
     def evaluating(self) -> bool:
@@ -449,17 +484,15 @@ class DesignState(LoadingMixin, LqrMixin, param.Parameterized):
         drag = self._drag
         if not live:
             self._drag = None  # the release ends the drag whatever happens next
-        accepted = False
         with self._reporting("place the poles there"):
             request = targets_after_drag(
                 drag["poles"], drag["index"], target, snap_distance=snap_distance, movable=drag["movable"]
             )
             drag["request"] = request
-            placement = core.assign_poles(self.plant, request.targets)
-            accepted = self._apply_placement(placement, live=live, note=request.note)
+            return self._place(request.targets, live=live, note=request.note)
         if not live:
             self.end_gesture()
-        return accepted
+        return False
 
     @property
     def drag_preview(self):
@@ -480,18 +513,43 @@ class DesignState(LoadingMixin, LqrMixin, param.Parameterized):
     def place_poles(self, targets) -> bool:
         """Compute K by pole assignment for a full list of target poles (typed in)."""
         with self._reporting("place the poles there"):
-            placement = core.assign_poles(self.plant, list(targets))
-            return self._apply_placement(placement, live=False, note="")
+            return self._place(list(targets), live=False, note="")
         return False
 
-    def _apply_placement(self, placement, *, live: bool, note: str) -> bool:
-        """Use a pole assignment's gain; its method goes to ``placement_summary``, warnings to the message."""
-        if not placement.accurate:
-            note = " ".join(n for n in (note, "The poles could only be placed approximately:", placement.note) if n)
-        accepted = self.set_gain(placement.gain, live=live, note=note)
-        if accepted:
+    def _place(self, targets, *, live: bool, note: str) -> bool:
+        """Ask for K by pole assignment (off the event loop when served) and take it over when it arrives.
+
+        Returns whether the assignment was accepted (always True when it runs later: a failure
+        is then shown when it arrives, and the design stays).
+        """
+        before = self.gain.copy()
+        placed = []
+
+        def take_over(placement) -> None:
+            placed.append(placement)
+            if live:
+                self.history.live_step(before)
+            else:
+                self.history.accepted(before, self.gain)
+                self._sync_history_depths()
             self.placement_summary = f"{placement.method}. {placement.note}".strip()
-        return accepted
+            words = note
+            if not placement.accurate:
+                words = " ".join(n for n in (note, "The poles could only be placed approximately:", placement.note) if n)
+            if words:
+                self._say(words, "note")
+            else:
+                self.clear_message()
+            if not live:
+                self._commit()
+
+        self._failure = None
+        self._request_evaluation(self.refresh.step() if live else self.refresh.release(), targets=targets,
+                                 on_placed=take_over)
+        if self._failure is not None:  # delivered at once, and refused
+            failure, self._failure = self._failure, None
+            raise failure
+        return bool(placed) or not getattr(self.runner, "synchronous", False)
 
     # -- accepted changes ----------------------------------------------------------------------
 

@@ -30,7 +30,7 @@ from gainboard import core
 
 from .autosave import AutosaveStore
 from .evaluation_pool import PooledRunner, shared_pool
-from .refresh_policy import PLOT_VIEWS, RefreshPolicy, detail_options
+from .refresh_policy import PLOT_VIEWS, Detail, RefreshPolicy, detail_options
 from .room_link import RoomLink
 from .rooms import ROOM_PARAMETER
 from .scheduling import LatestOnly
@@ -158,6 +158,9 @@ class Workbench:
         self._show_autosave_note("Your design is saved here after every change you make.")
         if document is not None:
             document.on_session_destroyed(lambda context: self.close())
+            # A page may open with a quick first evaluation (see open_session): the complete one
+            # runs off the event loop once the page is shown.
+            pn.state.onload(lambda: self._guarded(self.state.complete))
 
     @property
     def nickname(self) -> str:
@@ -494,7 +497,11 @@ def open_session(plant, *, plant_label: str = "", plant_text: str = "", argument
         except core.GainboardError as error:
             problem = f"Could not open the snapshot link: {error}"
     if state is None:
-        state = DesignState(plant, plant_label=plant_label, plant_text=plant_text)
+        # Quick at first (poles, locus, responses: no margins, no all-entry intervals) so that the
+        # page is built fast inside the HTTP request; the workbench completes it off the loop on load.
+        served = pn.state.curdoc is not None and pn.state.curdoc.session_context is not None
+        state = DesignState(plant, plant_label=plant_label, plant_text=plant_text,
+                            first_detail=Detail.STEP if served else Detail.COMPLETE)
     nickname = clean_display_name(user or "") if user and user != "guest" else ""
     nickname = nickname or clean_display_name(_argument(arguments, NAME_PARAMETER))
     workbench = Workbench(state, autosave=AutosaveStore() if autosave else None, nickname=nickname)

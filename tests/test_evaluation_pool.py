@@ -155,3 +155,49 @@ def test_a_failed_evaluation_on_a_pool_is_shown_and_the_inputs_go_back(reference
     loop.pump()
     assert state.message_kind == "error" and "no eigenvalues" in state.message
     np.testing.assert_array_equal(state.gain, REFERENCE_GAIN)  # back to the design shown
+
+
+def finish_all(pool, loop, from_index: int = 0) -> None:
+    """Compute every call the held pool started (in order) and deliver each on the loop."""
+    from gainboard.app.evaluation_runner import evaluate_request
+
+    index = from_index
+    while index < len(pool.started):
+        queued, future = pool.started[index]
+        try:
+            future.set_result(evaluate_request(queued))
+        except core.GainboardError as error:
+            future.set_exception(error)
+        loop.pump()
+        index += 1
+
+
+def test_a_pole_drag_on_a_pool_assigns_off_the_loop_and_is_one_undo_step(reference_plant):
+    pool, loop = HeldPool(), Loop()
+    state = DesignState(reference_plant, gain=REFERENCE_GAIN)
+    state.runner = PooledRunner(pool, loop.schedule)
+    index = int(np.argmax(np.imag(state.evaluation.closed_loop.poles)))  # −2 + 4j (Ogata Example 10-1)
+    assert state.begin_drag(index)
+    assert state.drag_pole(-2.5 + 3.5j, live=True) and state.drag_pole(-3 + 3j, live=True)
+    np.testing.assert_array_equal(state.gain, REFERENCE_GAIN)  # nothing computed on the caller's side
+    assert state.drag_pole(-3 + 3j, live=False)
+    finish_all(pool, loop)
+    # numpy eig of A − BK: the drop point, its conjugate, and −10 kept
+    assert matched_distance(eig_closed_loop(reference_plant, state.gain), [-3 + 3j, -3 - 3j, -10]) < 1e-8
+    assert matched_distance(state.evaluation.closed_loop.poles, eig_closed_loop(reference_plant, state.gain)) < 1e-9
+    assert state.undo_depth == 1 and state.placement_summary
+    assert state.undo()
+    finish_all(pool, loop, len(pool.started) - 1)
+    np.testing.assert_array_equal(state.gain, REFERENCE_GAIN)
+
+
+def test_a_refused_drop_on_a_pool_shows_why_and_keeps_the_design(reference_plant):
+    pool, loop = HeldPool(), Loop()
+    state = DesignState(reference_plant, gain=REFERENCE_GAIN)
+    state.runner = PooledRunner(pool, loop.schedule)
+    # Two target poles for a plant with three states: the core must refuse (one pole per state).
+    assert state.place_poles([-2.0, -3.0])
+    finish_all(pool, loop)
+    assert state.message_kind == "error" and "Could not place the poles there" in state.message
+    np.testing.assert_array_equal(state.gain, REFERENCE_GAIN)
+    assert matched_distance(state.evaluation.closed_loop.poles, REFERENCE_POLES) < 1e-9  # Ogata Example 10-1
