@@ -336,13 +336,17 @@ class DesignState(LoadingMixin, LqrMixin, param.Parameterized):
                 self.history.accepted(before, checked)
                 self._sync_history_depths()
             accepted = True
-            if note:
-                self._say(note, "note")
-            else:
-                self.clear_message()
-            if not live:
-                self._commit()
+            self._after_gain_change(note, live)
         return accepted
+
+    def _after_gain_change(self, note: str, live: bool) -> None:
+        """Show ``note`` (or clear the message) and, outside a gesture, commit the change."""
+        if note:
+            self._say(note, "note")
+        else:
+            self.clear_message()
+        if not live:
+            self._commit()
 
     def set_entry(self, row: int, col: int, value: float, *, live: bool = False) -> bool:
         """Set one entry k[row, col] (zero-based) and keep the others."""
@@ -536,12 +540,7 @@ class DesignState(LoadingMixin, LqrMixin, param.Parameterized):
             words = note
             if not placement.accurate:
                 words = " ".join(n for n in (note, "The poles could only be placed approximately:", placement.note) if n)
-            if words:
-                self._say(words, "note")
-            else:
-                self.clear_message()
-            if not live:
-                self._commit()
+            self._after_gain_change(words, live)
 
         self._failure = None
         self._request_evaluation(self.refresh.step() if live else self.refresh.release(), targets=targets,

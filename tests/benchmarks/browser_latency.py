@@ -63,9 +63,9 @@ PLOTS_DRAWN = """() => {
     if (!window.Bokeh || !Bokeh.documents.length) return false;
     const figure = Bokeh.documents[0].get_model_by_name('response_outputs');
     if (!figure) return false;
+    if (!figure.renderers.length) return false;
     const data = figure.renderers[0].data_source.data;
-    const column = data.ys || data.y;
-    return column && column.length > 0 ? performance.now() : false;
+    return Object.values(data).some(column => column.length > 0) ? performance.now() : false;
 }"""
 
 RESOURCE_BYTES = """() => performance.getEntriesByType('navigation').concat(performance.getEntriesByType('resource'))
@@ -114,12 +114,22 @@ class FrameCounter:
         return self.frames, self.bytes
 
 
-def timed_steps(page, count: int, act) -> list[float]:
-    """Latencies of ``count`` steps made by ``act(step)``, each waiting for its redraw."""
+def timed_steps(page, count: int, act, timeout_ms: int = 60_000) -> list[float]:
+    """Latencies of ``count`` steps made by ``act(step)``, each waiting for its redraw.
+
+    A step without a redraw within ``timeout_ms`` ends the gesture: the steps timed so far are returned.
+    """
+    from playwright.sync_api import TimeoutError as PlaywrightTimeout
+
     page.evaluate("() => { window.__latencies = []; window.__start = null; }")
     for step in range(count):
         act(step)
-        page.wait_for_function(f"() => window.__latencies.length > {step}", timeout=60_000, polling=POLL_MS)
+        try:
+            page.wait_for_function(f"() => window.__latencies.length > {step}", timeout=timeout_ms, polling=POLL_MS)
+        except PlaywrightTimeout:
+            print(f"    (step {step + 1} of {count} was not redrawn within {timeout_ms / 1000:.0f} s; gesture ended)",
+                  flush=True)
+            break
     return list(page.evaluate("() => window.__latencies"))
 
 
@@ -175,14 +185,17 @@ def measure(browser, plant: str, moves: int, floor: bool = False) -> dict:
             x, y = page.evaluate(POLE_POSITION)
             page.mouse.move(x, y)
             page.mouse.down()
-            pole = {"x": x, "y": y}
+            # past the browser's pan threshold first (a few pixels): only then does the drag reach the server
+            page.mouse.move(x - 6, y + 3, steps=3)
+            page.wait_for_timeout(1000)
+            pole = {"x": x - 6, "y": y + 3}
 
             def pole_step(step):
                 pole["x"] += -2 if (step // 8) % 2 == 0 else 2
                 pole["y"] += 1 if (step // 8) % 2 == 0 else -1
                 page.mouse.move(pole["x"], pole["y"])
 
-            results["pole drag"] = timed_steps(page, max(moves // 2, 10), pole_step)
+            results["pole drag"] = timed_steps(page, max(moves // 2, 10), pole_step, timeout_ms=15_000)
             page.mouse.up()
             settle(page)
         context.close()
@@ -219,6 +232,11 @@ def main(argv=None) -> int:
         for plant in args.plants:
             measured[plant] = measure(browser, plant, args.moves)
         browser.close()
+    print_results(measured, floor)
+    return 0
+
+
+def print_results(measured: dict, floor: dict | None) -> None:
     for name, results in measured.items():
         print(f"{name}:")
         usable = results["first page usable (ms)"]
@@ -231,7 +249,6 @@ def main(argv=None) -> int:
                 report(gesture, results[gesture], floor)
         print(f"  per drag step: {results['frames per drag step']:.1f} websocket frames, "
               f"{results['bytes per drag step'] / 1e3:.1f} kB received")
-    return 0
 
 
 if __name__ == "__main__":
