@@ -216,6 +216,8 @@ class DesignState(LoadingMixin, LqrMixin, param.Parameterized):
             del self._on_placed[older]  # superseded while waiting: never delivered
         if request.sequence < self._shown_sequence:
             return  # superseded: a newer request's result is on screen
+        if request.refine is not None and request.sequence < self._sequence:
+            return  # the details of a design a newer change has replaced already
         if error is not None:
             self._failure = error
             if request.sequence == self._sequence:

@@ -201,3 +201,39 @@ def test_a_refused_drop_on_a_pool_shows_why_and_keeps_the_design(reference_plant
     assert state.message_kind == "error" and "Could not place the poles there" in state.message
     np.testing.assert_array_equal(state.gain, REFERENCE_GAIN)
     assert matched_distance(state.evaluation.closed_loop.poles, REFERENCE_POLES) < 1e-9  # Ogata Example 10-1
+
+
+def test_the_details_of_a_design_a_newer_step_replaced_are_not_shown(reference_plant):
+    # A pause's catch-up that a newer drag step overtakes would show the older design (and pull a
+    # slider's handle back under the mouse): it is dropped, the newer step is shown.
+    now = [0.0]
+    from gainboard.app.refresh_policy import RefreshPolicy
+
+    pool, loop = HeldPool(), Loop()
+    state = DesignState(reference_plant, gain=REFERENCE_GAIN,
+                        refresh=RefreshPolicy(pause_after=0.15, texts_at_least_every=1.0, clock=lambda: now[0]))
+    state.runner = PooledRunner(pool, loop.schedule)
+    state.refresh.release()
+    now[0] = 0.05
+    state.set_entry(0, 0, 210.0, live=True)
+    finish_all(pool, loop)
+    assert state.detail is Detail.STEP
+    now[0] = 0.3
+    assert state.catch_up()  # the pause: the details of K with k11 = 210 are asked for ...
+    state.set_entry(0, 0, 220.0, live=True)  # ... and the drag goes on before they arrive
+    finish_all(pool, loop, len(pool.started) - 1)
+    assert state.evaluation.gain[0, 0] == 220.0 and state.detail is Detail.STEP
+    assert matched_distance(state.evaluation.closed_loop.poles, eig_closed_loop(reference_plant, state.gain)) < 1e-9
+
+
+def test_a_slider_handle_is_not_moved_while_its_gesture_goes_on(reference_plant):
+    from gainboard.app.workbench import build_workbench
+
+    workbench = build_workbench(reference_plant).workbench
+    state, controls = workbench.state, workbench.sliders._controls[(0, 0)]
+    state.set_gain(REFERENCE_GAIN)
+    controls.slider.value = 205.0  # the browser's handle, ahead of the design shown
+    state.set_entry(0, 0, 204.0, live=True)
+    assert controls.slider.value == 205.0 and controls.number.value == 204.0
+    state.end_gesture()
+    assert controls.slider.value == 204.0  # on release the handle shows the design

@@ -15,6 +15,7 @@ from html import escape
 import numpy as np
 import panel as pn
 
+from ..refresh_policy import detail_options
 from ..scheduling import guarded
 from ..theme import PALETTE, entry_symbol, format_number
 from .html_box import HtmlBox
@@ -202,7 +203,13 @@ class EntryControls:
         low, high = slider_range.low, slider_range.high
         if self.slider.start != low or self.slider.end != high:
             self.slider.param.update(start=low, end=high, step=slider_range.step)
-        self.show_value(value)
+        if detail_options(self.owner.state.detail).gesture:
+            # Shown during a gesture: the handle is where the user holds it, and the design shown may
+            # be a step behind (setting it would pull the handle back under the mouse). It follows
+            # on release, which is always complete.
+            self.show_number(value)
+        else:
+            self.show_value(value)
         self.locus_button.color = "primary" if selected else "light"
         text = _interval_text(self.symbol, intervals, high - low)
         badge = ""
