@@ -153,7 +153,7 @@ class Workbench:
         state.param.watch(self._on_message, ["message", "message_kind"])
         state.param.watch(self._on_committed, "committed")
         self.panel = self._layout()
-        self._on_evaluation()
+        self._on_evaluation(every_view=True)
         self._on_message()
         self._show_autosave_note("Your design is saved here after every change you make.")
         if document is not None:
@@ -223,11 +223,14 @@ class Workbench:
             f"Something went wrong ({type(error).__name__}: {error}); the design was kept as it was.", "error"
         )
 
-    def _on_evaluation(self, *events) -> None:
-        """Redraw what the level of detail of the evaluation shown redraws (see refresh_policy)."""
+    def _on_evaluation(self, *events, every_view: bool = False) -> None:
+        """Redraw what the level of detail of the evaluation shown redraws (see refresh_policy).
+
+        ``every_view``: the page is being built, so every view draws what it has.
+        """
         evaluation = self.state.evaluation
         # Without a browser there is no layout work to spare: every view follows every evaluation.
-        plots_only = detail_options(self.state.detail).plots_only and self.document is not None
+        plots_only = detail_options(self.state.detail).plots_only and self.document is not None and not every_view
         names = PLOT_VIEWS if plots_only else self._views.keys()
         with pn.io.hold():
             for name in names:

@@ -51,7 +51,7 @@ def entry_units(plant, row: int, col: int) -> str:
 
 def _interval_text(symbol: str, intervals, scale: float = 0.0) -> str:
     if intervals is None:
-        return ""
+        return "exact stable range: computing…"
 
     def number(value):
         return format_number(value, scale=scale)
@@ -81,7 +81,9 @@ def interval_strip_svg(low: float, high: float, value: float, intervals, width: 
     def position(v: float) -> float:
         return min(max((v - low) / span * width, 0.0), float(width))
 
-    shapes = [f'<rect x="0" y="1" width="{width}" height="{STRIP_HEIGHT - 2}" fill="{PALETTE["interval_unstable"]}"/>']
+    # Without the exact intervals (a quick evaluation) the strip is neutral: never coloured by a guess.
+    base = PALETTE["interval_unstable"] if intervals is not None else PALETTE["rule"]
+    shapes = [f'<rect x="0" y="1" width="{width}" height="{STRIP_HEIGHT - 2}" fill="{base}"/>']
     if intervals is not None:
         for a, b in intervals.intervals:
             if b <= low or a >= high:
