@@ -18,10 +18,10 @@ import numpy as np
 
 from gainboard import core
 
-from . import cli_output
+from . import cli_estimator, cli_output
 
 #: Options whose value may start with '-' (negative poles, gains, states).
-_VALUE_OPTIONS = ("--poles", "--gain", "--x0", "--entry", "--range")
+_VALUE_OPTIONS = ("--poles", "--gain", "--x0", "--entry", "--range") + cli_estimator.VALUE_OPTIONS
 
 
 class UsageError(Exception):
@@ -160,7 +160,8 @@ def command_evaluate(args) -> int:
     )
     evaluation = core.evaluate_design(plant, gain, options)
     record = cli_output.evaluation_record(evaluation, specs_given=specs is not None)
-    cli_output.emit(record, args.json, cli_output.evaluation_table)
+    cli_estimator.add_compensator_to_evaluation(args, plant, evaluation, record)
+    cli_output.emit(record, args.json, cli_estimator.evaluation_table)
     spec_report = evaluation.spec_report
     return 1 if spec_report is not None and not spec_report.all_passed else 0
 
@@ -260,7 +261,10 @@ def build_parser() -> argparse.ArgumentParser:
     evaluate.add_argument("--specs", help="spec file (TOML) to check against (default: the plant file's [specs])")
     evaluate.add_argument("--horizon", type=float, help="simulation length in seconds (default: from the slowest pole)")
     evaluate.add_argument("--json", action="store_true", help="print JSON instead of a table")
+    cli_estimator.add_evaluate_options(evaluate)
     evaluate.set_defaults(handler=command_evaluate)
+
+    cli_estimator.add_estimator_command(commands, plant_help, gain_help)
 
     sweep = commands.add_parser("sweep", help="exact stable range and pole locus of one gain entry k_ij")
     sweep.add_argument("plant", help=plant_help)

@@ -345,8 +345,8 @@ def _refuse_impossible_targets(dual: Plant, targets, form: str) -> np.ndarray:
         needed = ("reduced-order estimator poles (one per estimated combination)" if form == "reduced-order"
                   else "estimator poles (one per state)")
         raise PlacementError(
-            f"{given} estimator poles were given (with missing conjugates added: see the targets) but {n} {needed} "
-            "are needed; give exactly that many"
+            f"{given} estimator poles were given but {n} {needed} are needed (a complex pole counts with its "
+            "conjugate); give exactly that many"
         ) from None
     form_staircase = controllability_staircase(dual.A, dual.B)
     k = form_staircase.controllable_dimension
