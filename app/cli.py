@@ -182,7 +182,8 @@ def command_export(args) -> int:
     from .design_file import load_design
     from .export import export_design
 
-    text = export_design(load_design(args.design), args.format)
+    text = export_design(load_design(args.design), args.format, sample_time=args.sample_time,
+                         sampled_form=args.sampled_form)
     if args.output:
         from .design_file import write_text_atomically
 
@@ -279,6 +280,11 @@ def build_parser() -> argparse.ArgumentParser:
     export.add_argument("--format", required=True, choices=("json", "csv", "c", "python", "html"),
                         help="json, csv, c (a C header), python (a snippet) or html (a standalone design report)")
     export.add_argument("-o", "--output", help="write to this file instead of standard output")
+    export.add_argument("--sample-time", type=float, metavar="T",
+                        help="controller period in seconds for a continuous design with an estimator "
+                             "(the compensator is discretised and the file says how)")
+    export.add_argument("--sampled-form", choices=("prediction", "current"), default="prediction",
+                        help="sampled estimator form for a continuous full-order design (default: prediction)")
     export.set_defaults(handler=command_export)
 
     plants = commands.add_parser("plants", help="list the bundled sample plants")

@@ -28,3 +28,4 @@ from ._kalman import *  # noqa: F401,F403
 from ._compensator import *  # noqa: F401,F403
 from ._compensator_responses import *  # noqa: F401,F403
 from ._compensator_evaluation import *  # noqa: F401,F403
+from ._compensator_sampling import *  # noqa: F401,F403
