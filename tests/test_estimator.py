@@ -177,9 +177,9 @@ def test_estimator_refuses_repeats_its_observability_indices_forbid_in_estimator
 
 
 def test_estimator_refuses_a_wrong_number_of_poles_non_finite_ones_and_bad_forms():
-    with pytest.raises(PlacementError, match="3 estimator poles were given .* but 2 estimator poles"):
+    with pytest.raises(PlacementError, match="3 estimator poles were given but 2 estimator poles"):
         assign_estimator_poles(PENDULUM, [-1.0, -2.0, -3.0])
-    with pytest.raises(PlacementError, match="2 estimator poles were given .* but 1 reduced-order"):
+    with pytest.raises(PlacementError, match="2 estimator poles were given but 1 reduced-order"):
         assign_estimator_poles(DOUBLE_INTEGRATOR, [-1.0, -2.0], form="reduced-order")
     with pytest.raises(PlacementError, match="not a finite number"):
         assign_estimator_poles(PENDULUM, [-1.0, float("nan")])
