@@ -19,6 +19,7 @@ import numpy as np
 from gainboard import core
 
 from . import cli_estimator, cli_output
+from .pole_list import parse_pole_list
 
 #: Options whose value may start with '-' (negative poles, gains, states).
 _VALUE_OPTIONS = ("--poles", "--gain", "--x0", "--entry", "--range") + cli_estimator.VALUE_OPTIONS
@@ -51,21 +52,6 @@ def resolve_plant(reference: str) -> core.Plant:
 
     path, _ = resolve_plant_reference(reference)
     return core.load_plant_file(path)
-
-
-def parse_poles(text: str) -> list[complex]:
-    """Parse ``"-2+4j,-2-4j,-10"`` (``i`` accepted for ``j``) into complex numbers."""
-    poles = []
-    for piece in text.replace(" ", "").split(","):
-        if not piece:
-            continue
-        try:
-            poles.append(complex(piece.replace("i", "j")))
-        except ValueError:
-            raise UsageError(f"cannot read pole {piece!r}; write poles like -2+4j,-2-4j,-10") from None
-    if not poles:
-        raise UsageError("no poles given; write them like --poles \"-2+4j,-2-4j,-10\"")
-    return poles
 
 
 def parse_gain(text: str, plant: core.Plant) -> np.ndarray:
@@ -138,7 +124,7 @@ def _save_design_if_asked(args, plant: core.Plant, gain: np.ndarray, notes: str)
 
 def command_assign(args) -> int:
     plant = resolve_plant(args.plant)
-    result = core.assign_poles(plant, parse_poles(args.poles))
+    result = core.assign_poles(plant, parse_pole_list(args.poles))
     _save_design_if_asked(args, plant, result.gain, f"Poles assigned by {result.method}: {args.poles}")
     cli_output.emit(cli_output.assignment_record(plant, result), args.json, cli_output.assignment_table)
     return 0

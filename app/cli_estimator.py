@@ -121,7 +121,8 @@ def estimator_table(record: dict) -> str:
 
 
 def command_estimator(args) -> int:
-    from .cli import parse_gain, parse_poles, resolve_plant
+    from .cli import parse_gain, resolve_plant
+    from .pole_list import parse_pole_list
 
     plant = resolve_plant(args.plant)
     if (args.poles is None) == (not args.kalman):
@@ -133,14 +134,14 @@ def command_estimator(args) -> int:
             plant, parse_noise(args.process_noise, "process noise"),
             parse_noise(args.measurement_noise, "measurement noise"), form=args.form)
     else:
-        result = core.assign_estimator_poles(plant, parse_poles(args.poles), form=args.form)
+        result = core.assign_estimator_poles(plant, parse_pole_list(args.poles), form=args.form)
     if args.save:
         if args.gain is None:
             raise EstimatorUsageError("--save needs --gain K as well: a design file holds the compensator u = -K x̂")
         from .design_file import Design, EstimatorDesign, save_design
 
         gain = parse_gain(args.gain, plant)
-        settings = EstimatorDesign.from_result(result, poles=None if args.kalman else parse_poles(args.poles))
+        settings = EstimatorDesign.from_result(result, poles=None if args.kalman else parse_pole_list(args.poles))
         design = Design(plant=plant, gain=gain, estimator=settings,
                         notes=f"Estimator by {result.method} ({result.form}).").with_gain(gain)
         save_design(design, args.save)
