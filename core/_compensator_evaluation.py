@@ -35,6 +35,7 @@ from ._integral_action import augment_with_integral_action
 from ._margins import LoopMargins, loop_margins
 from ._observability import ObservabilityReport, analyze_observability
 from ._plant import Plant
+from ._view_ranges import _slider_ranges
 from ._single_entry import (
     EntryLocus,
     StableIntervals,
@@ -81,6 +82,10 @@ class EstimatorOptions:
         Compute the exact stable interval of every entry of L (for the sliders).
     settling_band : float
         Settling band of the response metrics.
+    previous_slider_ranges : dict, optional
+        The slider ranges of L shown before (same plant and form), kept while they fit.
+    gesture : bool
+        True during a drag: slider ranges are kept.
     """
 
     form: str | None = None
@@ -94,6 +99,8 @@ class EstimatorOptions:
     include_margins: bool = True
     include_all_entry_intervals: bool = True
     settling_band: float = 0.02
+    previous_slider_ranges: dict | None = None
+    gesture: bool = False
 
 
 @dataclass(frozen=True, eq=False)
@@ -127,6 +134,12 @@ class CompensatorEvaluation:
     selected_intervals : StableIntervals or None
     selected_locus : EntryLocus or None
         Error poles as the selected entry of L sweeps its range.
+    slider_ranges : dict
+        ``(row, col) -> SliderRange`` of every entry of L (the rules of the K sliders,
+        applied on the dual plant).
+    estimator_pole_movable : tuple of bool
+        For each pole of ``estimator_poles.poles``, whether some L can move it (False for
+        an unobservable pole).
     messages : tuple of str
         Warnings for the user.
     """
@@ -147,6 +160,8 @@ class CompensatorEvaluation:
     selected_entry: tuple[int, int] | None
     selected_intervals: StableIntervals | None
     selected_locus: EntryLocus | None
+    slider_ranges: dict = field(default_factory=dict)
+    estimator_pole_movable: tuple[bool, ...] = field(default=())
     messages: tuple[str, ...] = field(default=())
 
 
@@ -288,13 +303,42 @@ def evaluate_compensator(plant: Plant, state_gain, estimator_gain, options: Esti
         selected = (row, col)
         if intervals:
             intervals[selected] = selected_intervals
+    dual = estimator_dual_plant(plant, form)
+    previous = options.previous_slider_ranges
+    previous_dual = None if not previous else _TransposedRanges({(j, i): r for (i, j), r in previous.items()})
+    dual_ranges = _slider_ranges(dual, L.T, None if selected is None else (selected[1], selected[0]), previous_dual,
+                                 options.gesture)
+    movable = _movable(error_report.poles, observability.unobservable_poles)
     return CompensatorEvaluation(
         plant=plant, state_gain=K, estimator_gain=L, form=form,
         observability=observability, estimator_poles=error_report, compensator=compensator,
         closed_loop=closed_loop, responses=responses, margins=margins, state_feedback_margins=full_state,
         margin_comparison=comparison, entry_intervals=intervals, selected_entry=selected,
-        selected_intervals=selected_intervals, selected_locus=selected_locus, messages=tuple(messages),
+        selected_intervals=selected_intervals, selected_locus=selected_locus,
+        slider_ranges={(j, i): r for (i, j), r in dual_ranges.items()}, estimator_pole_movable=movable,
+        messages=tuple(messages),
     )
+
+
+@dataclass(frozen=True)
+class _TransposedRanges:
+    """The previous slider ranges in the dual plant's indexing (what the K-slider rules read)."""
+
+    sliders: dict
+
+
+def _movable(poles: np.ndarray, hidden: np.ndarray) -> tuple[bool, ...]:
+    """False for the error poles that are hidden (unobservable) poles: no L moves them."""
+    flags = [True] * len(poles)
+    remaining = list(range(len(poles)))
+    for pole in np.asarray(hidden, dtype=complex):
+        if not remaining:
+            break
+        nearest = min(remaining, key=lambda i: abs(poles[i] - pole))
+        if abs(poles[nearest] - pole) <= 1e-6 * max(1.0, abs(pole)):
+            flags[nearest] = False
+            remaining.remove(nearest)
+    return tuple(flags)
 
 
 @dataclass(frozen=True, eq=False)
@@ -324,8 +368,12 @@ def evaluate_observer_design(plant: Plant, state_gain, estimator_gain, options: 
     >>> both.design.margins.gain_margin_increase, round(both.compensator.margins.gain_margin_increase, 6)
     (inf, 6.04)
     """
-    design = evaluate_design(plant, state_gain, options)
     estimator_options = estimator_options or EstimatorOptions()
+    options = options or EvaluationOptions()
+    # the pole map shows the estimator poles too, so its frame must hold them
+    error_poles = np.linalg.eigvals(estimator_error_matrix(plant, estimator_gain, estimator_options.form))
+    options = replace(options, reference_poles=tuple(options.reference_poles) + tuple(error_poles))
+    design = evaluate_design(plant, state_gain, options)
     reuse = design.margins if estimator_options.integral_gain is None else None
     compensator = evaluate_compensator(plant, design.gain, estimator_gain, estimator_options,
                                        state_feedback_margins=reuse)
