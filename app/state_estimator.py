@@ -81,10 +81,14 @@ class EstimatorMixin:
         with self._reporting("switch what is edited"):
             if mode not in EDITING_MODES:
                 raise core.EstimatorError(f"choose what to edit: {' or '.join(EDITING_MODES)}, not {mode!r}")
+            if mode == self.editing:
+                return True
+            self._drag = None
             if mode == "estimator" and self.estimator is None:
-                self._enable_estimator(None)
-            if mode != self.editing:
-                self._drag = None
+                # one change, so every view sees the estimator and the mode together
+                settings, note = self._first_estimator(None)
+                self._change_design({"estimator": settings, "editing": mode}, live=False, note=note)
+            else:
                 self._set_inputs(self.refresh.release(), editing=mode)
             return True
         return False
@@ -96,6 +100,8 @@ class EstimatorMixin:
         form = core.check_estimator_form(self.plant, form)
         if self.plant.noise is not None and form != "reduced-order":
             result = core.design_kalman_estimator(self.plant, form=form)
+            with param.edit_constant(self):
+                self.kalman_result = result
             return EstimatorDesign.from_result(result), "A first estimator: the Kalman filter of the plant's noise."
         targets = self._faster_than_controller(form)
         try:
@@ -109,6 +115,8 @@ class EstimatorMixin:
                 result = core.design_kalman_estimator(self.plant, form=form)
             except core.GainboardError:
                 raise placement_problem from None
+            with param.edit_constant(self):
+                self.kalman_result = result
             return (EstimatorDesign.from_result(result),
                     f"A first estimator: the Kalman filter with unit noise ({placement_problem}).")
 

@@ -35,6 +35,7 @@ from ._integral_action import augment_with_integral_action
 from ._margins import LoopMargins, loop_margins
 from ._observability import ObservabilityReport, analyze_observability
 from ._plant import Plant
+from ._reduced_estimator import reduced_order_coordinates
 from ._view_ranges import _slider_ranges
 from ._single_entry import (
     EntryLocus,
@@ -140,6 +141,9 @@ class CompensatorEvaluation:
     estimator_pole_movable : tuple of bool
         For each pole of ``estimator_poles.poles``, whether some L can move it (False for
         an unobservable pole).
+    gain_row_names, gain_row_units : tuple of str
+        What the rows of L correct: the states, or for the reduced-order form the
+        estimated combinations (the unmeasured states when the outputs measure states directly).
     messages : tuple of str
         Warnings for the user.
     """
@@ -162,6 +166,8 @@ class CompensatorEvaluation:
     selected_locus: EntryLocus | None
     slider_ranges: dict = field(default_factory=dict)
     estimator_pole_movable: tuple[bool, ...] = field(default=())
+    gain_row_names: tuple[str, ...] = field(default=())
+    gain_row_units: tuple[str, ...] = field(default=())
     messages: tuple[str, ...] = field(default=())
 
 
@@ -309,6 +315,11 @@ def evaluate_compensator(plant: Plant, state_gain, estimator_gain, options: Esti
     dual_ranges = _slider_ranges(dual, L.T, None if selected is None else (selected[1], selected[0]), previous_dual,
                                  options.gesture)
     movable = _movable(error_report.poles, observability.unobservable_poles)
+    if form == "reduced-order":
+        coordinates = reduced_order_coordinates(plant)
+        row_names, row_units = coordinates.names, coordinates.units
+    else:
+        row_names, row_units = plant.state_names, plant.state_units
     return CompensatorEvaluation(
         plant=plant, state_gain=K, estimator_gain=L, form=form,
         observability=observability, estimator_poles=error_report, compensator=compensator,
@@ -316,6 +327,7 @@ def evaluate_compensator(plant: Plant, state_gain, estimator_gain, options: Esti
         margin_comparison=comparison, entry_intervals=intervals, selected_entry=selected,
         selected_intervals=selected_intervals, selected_locus=selected_locus,
         slider_ranges={(j, i): r for (i, j), r in dual_ranges.items()}, estimator_pole_movable=movable,
+        gain_row_names=tuple(row_names), gain_row_units=tuple(row_units),
         messages=tuple(messages),
     )
 
