@@ -88,8 +88,8 @@ class DesignBar:
         # the typed targets place the poles of the gain being edited
         label = ("Estimator poles (typed; they set L)" if editing_estimator
                  else "Target poles (keyboard alternative to dragging)")
-        if self.targets.name != label:
-            self.targets.name = label
+        if self.targets.label != label:
+            self.targets.label = label
         poles = compensator.estimator_poles.poles if editing_estimator else evaluation.closed_loop.poles
         if not self.targets.value:
             self.targets.placeholder = ", ".join(format_complex(p, 4).replace("−", "-").replace(" ", "")

@@ -27,8 +27,8 @@ class EditMode:
 
     def __init__(self, state):
         self.state = state
-        self.switch = pn.widgets.RadioButtonGroup(options=list(MODE_LABELS), value="Controller K", button_type="primary",
-                                                  button_style="outline", margin=(2, 5), width=250,
+        self.switch = pn.widgets.RadioButtonGroup(options=list(MODE_LABELS), value="Controller K", color="primary",
+                                                  variant="outline", margin=(2, 5), width=250,
                                                   css_classes=["gb-edit-mode"])
         self.banner = pn.pane.HTML("", width=465, margin=(0, 5), stylesheets=[TABLE_CSS],
                                    css_classes=["gb-edit-banner"])

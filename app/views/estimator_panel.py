@@ -35,17 +35,17 @@ class EstimatorPanel:
     def __init__(self, state, sliders):
         self.state = state
         self.sliders = sliders
-        self.form = pn.widgets.Select(name="Estimator form", options=[], width=WIDTH - 10, margin=(2, 5))
+        self.form = pn.widgets.Select(label="Estimator form", options=[], width=WIDTH - 10, margin=(2, 5))
         self.gain_text = pn.widgets.TextAreaInput(
-            name="L (x̂ corrected by L × output error), copy or paste", value="", height=70, width=WIDTH - 10,
+            label="L (x̂ corrected by L × output error), copy or paste", value="", height=70, width=WIDTH - 10,
             margin=(2, 5), stylesheets=[":host textarea { font-family: ui-monospace, monospace; font-size: 12.5px; }"],
             css_classes=["gb-estimator-text"])
         self.apply_gain = pn.widgets.Button(label="Apply L", width=80, margin=(2, 5), color="primary")
         self.remove = pn.widgets.Button(label="Full-state feedback", width=150, margin=(2, 5),
                                         description="Remove the estimator (the design measures every state)")
-        self.process = pn.widgets.TextInput(name="Process noise W diagonal (one per state)", width=WIDTH - 10,
+        self.process = pn.widgets.TextInput(label="Process noise W diagonal (one per state)", width=WIDTH - 10,
                                             margin=(2, 5))
-        self.measurement = pn.widgets.TextInput(name="Measurement noise V diagonal (one per output)", width=WIDTH - 10,
+        self.measurement = pn.widgets.TextInput(label="Measurement noise V diagonal (one per output)", width=WIDTH - 10,
                                                 margin=(2, 5))
         self.kalman_button = pn.widgets.Button(label="Design Kalman L", width=140, margin=(4, 5), color="success")
         self.summary = HtmlBox(css=TABLE_CSS, width=WIDTH - 10, margin=(2, 5))
