@@ -206,7 +206,7 @@ class Workbench:
         )
         right = pn.Tabs(
             ("Responses", scrolling(pn.Column(self.responses.panel, self.estimator_responses.panel, margin=0), 478)),
-            ("Checks", scrolling(pn.Column(self.checks.panel, self.compensator_checks.panel, margin=0), 478)),
+            ("Checks", scrolling(pn.Column(self.compensator_checks.panel, self.checks.panel, margin=0), 478)),
             ("Poles", scrolling(self.pole_table.panel, 478)),
             width=480, margin=(0, 5), dynamic=False,
         )

@@ -15,10 +15,9 @@ __all__ = ["EditMode", "MODE_LABELS"]
 #: Switch label → the state's editing mode.
 MODE_LABELS = {"Controller K": "controller", "Estimator L": "estimator"}
 _BANNERS = {
-    "controller": ("Editing the controller gain K: drag a × closed-loop pole, or move a K slider (Gains tab).",
-                   PALETTE["closed_loop"]),
-    "estimator": ("Editing the estimator gain L: drag a ◆ estimator pole, or move an L slider (Estimator tab). "
-                  "The controller runs on the estimate, u = −K x̂.", PALETTE["estimator"]),
+    "controller": ("Editing the controller gain K: drag × poles; K sliders in Gains.", PALETTE["closed_loop"]),
+    "estimator": ("Editing the estimator gain L: drag ◆ poles; L sliders in Estimator; u = −K x̂.",
+                  PALETTE["estimator"]),
 }
 
 
@@ -28,13 +27,13 @@ class EditMode:
     def __init__(self, state):
         self.state = state
         self.switch = pn.widgets.RadioButtonGroup(options=list(MODE_LABELS), value="Controller K", color="primary",
-                                                  variant="outline", margin=(2, 5), width=250,
+                                                  variant="outline", margin=(2, 5), width=200,
                                                   css_classes=["gb-edit-mode"])
-        self.banner = pn.pane.HTML("", width=465, margin=(0, 5), stylesheets=[TABLE_CSS],
+        self.banner = pn.pane.HTML("", width=255, height=36, margin=(0, 5), stylesheets=[TABLE_CSS],
                                    css_classes=["gb-edit-banner"])
         self._syncing = False
         self.switch.param.watch(self._switched, "value")
-        self.panel = pn.Column(self.switch, self.banner, margin=0)
+        self.panel = pn.Row(self.switch, self.banner, margin=0)
 
     def _switched(self, event) -> None:
         if self._syncing:
@@ -52,5 +51,6 @@ class EditMode:
         finally:
             self._syncing = False
         text, colour = _BANNERS[mode]
-        self.banner.object = (f'<div class="gb-small gb-edit-text" style="border-left:5px solid {colour};padding:2px 8px;'
-                              f'color:{PALETTE["ink"]}"><b>{text.split(":")[0]}</b>:{text.split(":", 1)[1]}</div>')
+        self.banner.object = (f'<div class="gb-small gb-edit-text" style="border-left:5px solid {colour};padding:0 6px;'
+                              f'line-height:1.3;color:{PALETTE["ink"]}"><b>{text.split(":")[0]}</b>:'
+                              f'{text.split(":", 1)[1]}</div>')

@@ -43,17 +43,17 @@ class EstimatorResponses:
         fig.multi_line("xs", "ys", source=self.source, line_color="colour", line_dash="dash", line_width=2.0)
         self.figure = fig
         self.legend = HtmlBox(css=_css(), width=PLOT_WIDTH + 40)
-        self.plot = pn.pane.Bokeh(fig, margin=(0, 5), visible=False)
-        self.panel = pn.Column(self.plot, self.legend.panel, margin=0)
+        self.plot = pn.pane.Bokeh(fig, margin=(0, 5))
+        self.panel = pn.Column(self.plot, self.legend.panel, margin=0, visible=False)
 
     def refresh(self, evaluation) -> None:
         compensator = self.state.estimator_evaluation
         if compensator is None:
-            self.plot.visible = False
+            self.panel.visible = False
             self.source.data = {"xs": [], "ys": [], "colour": [], "dash": []}
             self.legend.object = ""
             return
-        self.plot.visible = True
+        self.panel.visible = True
         response = compensator.responses.initial
         time = _finite_list(response.time)
         data = {"xs": [], "ys": [], "colour": [], "dash": []}
