@@ -141,3 +141,25 @@ def test_the_estimator_form_can_change_and_reduced_order_has_its_own_shape():
     assert state.set_estimator_form("reduced-order")
     assert state.estimator.gain.shape == (2, 2) and state.estimator_evaluation.form == "reduced-order"
     assert state.estimator_evaluation.closed_loop.report.poles.size == 6  # n + (n − p)
+
+
+def test_the_workbench_views_follow_the_estimator_without_a_browser():
+    from gainboard.app.workbench import build_workbench
+
+    workbench = build_workbench(PENDULUM).workbench
+    state = workbench.state
+    assert "Editing the controller gain K" in workbench.edit_mode.banner.object
+    assert "add one" in workbench.compensator_checks.box.object
+    workbench.edit_mode.switch.value = "Estimator L"  # what a click does
+    assert state.editing == "estimator" and "Editing the estimator gain L" in workbench.edit_mode.banner.object
+    assert workbench.estimator_panel.gain_text.value.startswith("[[")
+    assert "with the estimator" in workbench.compensator_checks.box.object
+    assert len(workbench.estimator_panel.sliders.panel.objects) == 2  # one slider per entry of L (2×1)
+    assert workbench.pole_map.draw_tool.renderers == [workbench.pole_map.estimator_renderer]
+    assert len(workbench.pole_map.estimator_source.data["x"]) == 2
+    assert "estimator poles" in workbench.pole_map.legend.object
+    workbench.file_panel.export_format.value = "c"
+    header = workbench.file_panel._export().getvalue()
+    assert "observer-based compensator" in header and "emergency stops" in header
+    workbench.edit_mode.switch.value = "Controller K"
+    assert workbench.pole_map.draw_tool.renderers == [workbench.pole_map.closed_renderer]
