@@ -61,18 +61,16 @@ def estimator_noise(plant: Plant, process_noise=None, measurement_noise=None) ->
     """
     n, p = plant.state_count, plant.output_count
     own = plant.noise
-    if process_noise is not None:
-        W, where_W = process_noise, "given"
-    elif own is not None:
-        W, where_W = own.process, "from the plant"
-    else:
-        W, where_W = np.eye(n), "default (unit intensity on every state)"
-    if measurement_noise is not None:
-        V, where_V = measurement_noise, "given"
-    elif own is not None:
-        V, where_V = own.measurement, "from the plant"
-    else:
-        V, where_V = np.eye(p), "default (unit intensity on every output)"
+
+    def choose(given, plants, size, per):
+        if given is not None:
+            return given, "given"
+        if plants is not None:
+            return plants, "from the plant"
+        return np.eye(size), f"default (unit intensity on every {per})"
+
+    W, where_W = choose(process_noise, None if own is None else own.process, n, "state")
+    V, where_V = choose(measurement_noise, None if own is None else own.measurement, p, "output")
     if where_W == where_V:
         sources = f"W and V {where_W}"
     elif where_V == "given":

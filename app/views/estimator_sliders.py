@@ -8,15 +8,13 @@ entry (others fixed) for which the estimation error dies out.
 
 from __future__ import annotations
 
-import math
 from html import escape
 
 import numpy as np
 import panel as pn
 
-from ..scheduling import guarded
 from ..theme import PALETTE, estimator_entry_symbol
-from .gain_sliders import SLIDER_WIDTH, GainSliders, PromptSlider, _interval_text, interval_strip_svg
+from .gain_sliders import SLIDER_WIDTH, EntryActions, GainSliders, PromptSlider, _interval_text, interval_strip_svg
 from .html_box import HtmlBox
 
 __all__ = ["EstimatorSliders", "estimator_entry_units"]
@@ -35,7 +33,7 @@ def estimator_entry_units(plant, row: int, col: int, units) -> str:
     return ""
 
 
-class _EstimatorEntry:
+class _EstimatorEntry(EntryActions):
     def __init__(self, owner: "EstimatorSliders", row: int, col: int):
         self.owner, self.row, self.col = owner, row, col
         self.symbol = estimator_entry_symbol(row, col)
@@ -50,33 +48,14 @@ class _EstimatorEntry:
         self.strip = HtmlBox(css=GainSliders.css, width=SLIDER_WIDTH + 10, margin=(0, 4, 0, 8))
         self.panel = pn.Column(pn.Row(self.label, self.number, self.locus_button, margin=0), self.slider,
                                self.strip.panel, margin=(2, 0, 6, 0))
-        guard = guarded(lambda text: owner.state.show_message(text, "error"))
-        self.slider.param.watch(guard(self._moved), "value")
-        self.slider.param.watch(guard(self._released), "value_throttled")
-        self.number.param.watch(guard(self._typed), "value")
-        self.locus_button.on_click(lambda event: owner.state.select_estimator_entry(row, col))
+        self._connect(lambda: owner.state.select_estimator_entry(row, col))
 
-    def _moved(self, event) -> None:
-        if self.owner.syncing:
-            return
-        value = float(event.new)
-        self.owner.scheduler.submit(("estimator entry", self.row, self.col),
-                                    lambda: self.owner.state.set_estimator_entry(self.row, self.col, value, live=True))
+    @property
+    def key(self):
+        return ("estimator entry", self.row, self.col)
 
-    def _released(self, event) -> None:
-        if self.owner.syncing or event.new is None:
-            return
-        self.owner.scheduler.discard(("estimator entry", self.row, self.col))
-        self.owner.state.set_estimator_entry(self.row, self.col, float(event.new))
-
-    def _typed(self, event) -> None:
-        if self.owner.syncing or event.new is None:
-            return
-        value = float(event.new)
-        if not math.isfinite(value):
-            self.owner.state.show_message(f"{self.symbol} must be a finite number.", "error")
-            return
-        self.owner.state.set_estimator_entry(self.row, self.col, value)
+    def apply(self, value: float, live: bool = False) -> None:
+        self.owner.state.set_estimator_entry(self.row, self.col, value, live=live)
 
     def show(self, compensator, value: float, selected: bool, names, units) -> None:
         plant = compensator.plant
@@ -87,14 +66,8 @@ class _EstimatorEntry:
         self.label.object = (f'<div class="gb-entry-label"><span class="gb-k">{self.symbol}</span> {name}'
                              + (f'<br><span class="gb-units">{escape(unit_text)}</span>' if unit_text else "")
                              + "</div>")
-        if self.number.value is None or float(self.number.value) != value:
-            self.number.value = value
+        self._show_value(value, slider_range, selected)
         low, high = slider_range.low, slider_range.high
-        if self.slider.start != low or self.slider.end != high:
-            self.slider.param.update(start=low, end=high, step=slider_range.step)
-        if float(self.slider.value) != value:
-            self.slider.value = min(max(value, low), high)
-        self.locus_button.color = "primary" if selected else "light"
         badge = ""
         if intervals is not None:
             badge = ('<span class="gb-pass">✓ error dies out</span> · ' if intervals.current_is_stable

@@ -245,20 +245,13 @@ class PoleMap:
     def _set_closed_poles(self, evaluation) -> None:
         report = evaluation.closed_loop
         movable = self.state.closed_loop_movable()
-        labels, zetas, frequencies, taus, notes = [], [], [], [], []
-        for description, can_move in zip(report.descriptions, movable):
-            labels.append(format_complex(description.value))
-            zetas.append(format_number(description.damping_ratio, 3))
-            frequencies.append(format_number(description.natural_frequency, 4) + " rad/s")
-            taus.append(format_number(description.time_constant, 4) + " s")
-            notes.append("drag to move" if can_move else "cannot move: uncontrollable")
+        rows = _hover_rows(report.descriptions, movable, "", "drag to move", "cannot move: uncontrollable")
         x, y = _xy(report.poles)
         if self.state.editing != "estimator" or self.state.estimator_evaluation is None:
             self._shown_poles = [complex(a, b) for a, b in zip(x, y)]
         self._setting_poles = True
         try:
-            update_source(self.closed_source, {"x": x, "y": y, "label": labels, "zeta": zetas,
-                                               "wn": frequencies, "tau": taus, "movable": notes})
+            update_source(self.closed_source, {"x": x, "y": y, **rows})
             self.closed_source.selected.indices = []
         finally:
             self._setting_poles = False
@@ -277,20 +270,14 @@ class PoleMap:
                 self._setting_poles = False
             return
         report = compensator.estimator_poles
-        labels, zetas, frequencies, taus, notes = [], [], [], [], []
-        for description, can_move in zip(report.descriptions, compensator.estimator_pole_movable):
-            labels.append("estimator " + format_complex(description.value))
-            zetas.append(format_number(description.damping_ratio, 3))
-            frequencies.append(format_number(description.natural_frequency, 4) + " rad/s")
-            taus.append(format_number(description.time_constant, 4) + " s")
-            notes.append("drag to move (editing L)" if can_move else "cannot move: unobservable")
+        rows = _hover_rows(report.descriptions, compensator.estimator_pole_movable, "estimator ",
+                           "drag to move (editing L)", "cannot move: unobservable")
         x, y = _xy(report.poles)
         if self.state.editing == "estimator":
             self._shown_poles = [complex(a, b) for a, b in zip(x, y)]
         self._setting_poles = True
         try:
-            update_source(self.estimator_source, {"x": x, "y": y, "label": labels, "zeta": zetas,
-                                                  "wn": frequencies, "tau": taus, "movable": notes})
+            update_source(self.estimator_source, {"x": x, "y": y, **rows})
             self.estimator_source.selected.indices = []
         finally:
             self._setting_poles = False
@@ -513,6 +500,18 @@ class PoleMap:
     def _on_pan_end(self, event) -> None:
         if self._drag is not None:
             self._finish(self._pointer_target(event))
+
+
+def _hover_rows(descriptions, movable, prefix: str, can_move: str, cannot_move: str) -> dict:
+    """The hover texts of a set of pole markers (label, damping, frequency, time constant, whether it moves)."""
+    rows = {"label": [], "zeta": [], "wn": [], "tau": [], "movable": []}
+    for description, moves in zip(descriptions, movable):
+        rows["label"].append(prefix + format_complex(description.value))
+        rows["zeta"].append(format_number(description.damping_ratio, 3))
+        rows["wn"].append(format_number(description.natural_frequency, 4) + " rad/s")
+        rows["tau"].append(format_number(description.time_constant, 4) + " s")
+        rows["movable"].append(can_move if moves else cannot_move)
+    return rows
 
 
 def _legend_css() -> str:
