@@ -237,6 +237,10 @@ class EstimatorMixin:
             self.placement_summary = f"Estimator: {result.method}. {result.note}".strip()
         return accepted
 
+    def default_kalman_weights(self) -> core.NoiseIntensities:
+        """The noise a Kalman design starts from: the plant's ``[noise]``, else unit intensities (from the core)."""
+        return core.estimator_noise(self.plant)
+
     def design_kalman(self, process_noise=None, measurement_noise=None) -> bool:
         """L as the steady-state Kalman filter for these noise intensities (default: the plant's, else unit)."""
         with self._reporting("design the Kalman filter"):

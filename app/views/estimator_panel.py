@@ -101,7 +101,7 @@ class EstimatorPanel:
         self.remove.disabled = settings is None
         if plant is not self._plant:  # the weights start from the plant's noise (or the unit defaults)
             self._plant = plant
-            noise = core.estimator_noise(plant)
+            noise = self.state.default_kalman_weights()
             self.process.value = _diagonal_text(noise.process)
             self.measurement.value = _diagonal_text(noise.measurement)
         self.summary.object = self._summary(compensator)
