@@ -21,6 +21,7 @@ import numpy as np
 from gainboard import core
 
 from . import cli_output
+from .theme import SAFETY_CAUTION
 
 #: Options of this module whose value may start with '-' (see cli._join_negative_values).
 VALUE_OPTIONS = ("--estimator-gain", "--process-noise", "--measurement-noise", "--initial-estimate")
@@ -87,6 +88,7 @@ def estimator_record(plant: core.Plant, result: core.EstimatorResult) -> dict:
         "note": result.note,
         "state_order": list(plant.state_names),
         "output_order": list(plant.output_names),
+        "caution": SAFETY_CAUTION,
     }
     if result.error_covariance is not None:
         record["error_covariance"] = result.error_covariance
@@ -117,6 +119,7 @@ def estimator_table(record: dict) -> str:
         lines.append(cli_output.matrix_rows(record["error_covariance"]))
         lines.append(f"Noise: {record['noise_source']}; Riccati residual "
                      f"{cli_output.format_number(record['riccati_residual'], 3)}")
+    lines.append(f"Caution: {record['caution']}")
     return "\n".join(lines) + "\n"
 
 

@@ -72,6 +72,7 @@ def test_estimator_by_kalman_reads_the_plant_noise_table_and_reports_the_error_c
 def test_estimator_table_is_readable(pendulum, capsys):
     code, out, _ = run(capsys, "estimator", pendulum, "--poles", "-10,-10")
     assert code == 0 and "L (rows: x1, x2; columns: y1)" in out and "Estimator poles: -10, -10" in out
+    assert "emergency stops" in out  # the caution travels with every gain handed out
 
 
 @pytest.mark.parametrize("argv, message", [
