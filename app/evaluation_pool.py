@@ -92,10 +92,16 @@ def _evaluate_in_worker(token: int, plant, request: EvaluationRequest):
     request = dataclasses.replace(request, plant=kept)
     if request.refine is not None:
         request = dataclasses.replace(request, refine=dataclasses.replace(request.refine, plant=kept))
-    result = evaluate_request(request)
+    return _on_design(evaluate_request(request), _without_state_trajectories)
+
+
+def _on_design(result, change):
+    """``result`` with ``change`` applied to its DesignEvaluation (inside a Placed or an observer design)."""
     if isinstance(result, Placed):
-        return Placed(result.placement, _without_state_trajectories(result.evaluation))
-    return _without_state_trajectories(result)
+        return Placed(result.placement, _on_design(result.evaluation, change))
+    if hasattr(result, "design") and hasattr(result, "compensator"):  # an ObserverDesignEvaluation
+        return dataclasses.replace(result, design=change(result.design))
+    return change(result)
 
 
 def _worker_start() -> None:
@@ -162,11 +168,7 @@ class EvaluationPool:
             except BaseException as error:  # handed on to the session
                 result.set_exception(error)
                 return
-            if isinstance(evaluation, Placed):
-                result.set_result(Placed(evaluation.placement,
-                                         dataclasses.replace(evaluation.evaluation, plant=request.plant)))
-            else:
-                result.set_result(dataclasses.replace(evaluation, plant=request.plant))
+            result.set_result(_on_design(evaluation, lambda design: dataclasses.replace(design, plant=request.plant)))
 
         future.add_done_callback(with_own_plant)
         return result

@@ -42,6 +42,11 @@ class EvaluationRequest:
     targets : tuple of complex or None
         When set, K is first computed by pole assignment for these closed-loop poles (a pole
         drag, typed targets) and the result is a :class:`Placed`.
+    estimator_gain : numpy.ndarray or None
+        L of the design's estimator; with it the result is a
+        :class:`gainboard.core.ObserverDesignEvaluation` (the compensator evaluated too).
+    estimator_options : gainboard.core.EstimatorOptions or None
+        What to compute for the estimator side.
     """
 
     sequence: int
@@ -52,6 +57,8 @@ class EvaluationRequest:
     inputs: dict
     refine: object | None = None
     targets: tuple | None = None
+    estimator_gain: np.ndarray | None = None
+    estimator_options: object | None = None
 
 
 @dataclass(frozen=True, eq=False)
@@ -67,13 +74,33 @@ Delivery = Callable[[EvaluationRequest, object, BaseException], None]
 
 
 def evaluate_request(request: EvaluationRequest):
-    """The computation itself (the same in every runner): one or two calls of the core."""
-    if request.refine is not None:
-        return core.with_all_entry_intervals(request.refine)
-    if request.targets is not None:
+    """The computation itself (the same in every runner): a few calls of the core.
+
+    With targets, K is computed by pole assignment first and the result is a :class:`Placed`.
+    With an estimator gain the evaluation is an :class:`gainboard.core.ObserverDesignEvaluation`:
+    full-state feedback of K and the compensator with L, sharing the margins of K.
+    """
+    refine = request.refine
+    if isinstance(refine, core.ObserverDesignEvaluation):
+        refine = refine.design
+    gain, placement = request.gain, None
+    if request.targets is not None and refine is None:
         placement = core.assign_poles(request.plant, list(request.targets))
-        return Placed(placement, core.evaluate_design(request.plant, placement.gain, request.options))
-    return core.evaluate_design(request.plant, request.gain, request.options)
+        gain = placement.gain
+    if request.estimator_gain is None:
+        if refine is not None:
+            evaluation = core.with_all_entry_intervals(refine)
+        else:
+            evaluation = core.evaluate_design(request.plant, gain, request.options)
+    elif refine is None:
+        evaluation = core.evaluate_observer_design(request.plant, gain, request.estimator_gain, request.options,
+                                                   request.estimator_options)
+    else:
+        design = core.with_all_entry_intervals(refine)
+        compensator = core.evaluate_compensator(request.plant, design.gain, request.estimator_gain,
+                                                request.estimator_options, state_feedback_margins=design.margins)
+        evaluation = core.ObserverDesignEvaluation(design=design, compensator=compensator)
+    return evaluation if placement is None else Placed(placement, evaluation)
 
 
 class InlineRunner:

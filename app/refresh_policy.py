@@ -72,7 +72,7 @@ _OPTIONS = {
 
 #: Views redrawn at every level; the others are redrawn from PAUSE on. The values in the gain
 #: sliders' number boxes follow too (a nudge moves no handle in the browser); their strips wait.
-PLOT_VIEWS = frozenset({"pole_map", "response_plots", "slider_values"})
+PLOT_VIEWS = frozenset({"pole_map", "response_plots", "estimator_responses", "slider_values"})
 
 
 def detail_options(detail: Detail) -> DetailOptions:

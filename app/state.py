@@ -17,7 +17,10 @@ The class knows nothing about Panel or Bokeh: the same object serves the
 browser views, the tests and a Python session. Every public method reports
 problems through :attr:`message` and leaves the design as it was; none raises.
 Replacing the whole design (plants, design files, a room's design) lives in
-:mod:`gainboard.app.state_loading`, the LQR comparison in :mod:`gainboard.app.state_lqr`.
+:mod:`gainboard.app.state_loading`, the LQR comparison in :mod:`gainboard.app.state_lqr`,
+the estimator (L, its form, what is edited, estimator-pole drags) in
+:mod:`gainboard.app.state_estimator`. With an estimator the one evaluation call also
+evaluates the compensator (``estimator_evaluation``).
 
 Every accepted change of the design itself (plant, K, specs, notes — not the live
 steps of a drag) counts up :attr:`DesignState.committed` and is recorded in the gain
@@ -42,6 +45,7 @@ from .plant_catalogue import bundled_plant_catalogue, plant_from_reference  # no
 from .pole_drag import targets_after_drag
 from .refresh_policy import Detail, RefreshPolicy, detail_options
 from .state_loading import MAX_NOTES_CHARACTERS, LoadingMixin
+from .state_estimator import EDITING_MODES, EstimatorMixin, same_point
 from .state_lqr import LqrMixin
 
 __all__ = ["DesignState", "MAX_NOTES_CHARACTERS", "plant_from_reference", "bundled_plant_catalogue"]
@@ -49,10 +53,11 @@ __all__ = ["DesignState", "MAX_NOTES_CHARACTERS", "plant_from_reference", "bundl
 log = logging.getLogger(__name__)
 
 #: The inputs an evaluation describes, with the labels that go with the plant.
-_INPUTS = ("plant", "plant_label", "plant_text", "continuous_origin", "gain", "selected_entry", "specs")
+_INPUTS = ("plant", "plant_label", "plant_text", "continuous_origin", "gain", "selected_entry", "specs",
+           "estimator", "editing", "estimator_selected_entry")
 
 
-class DesignState(LoadingMixin, LqrMixin, param.Parameterized):
+class DesignState(LoadingMixin, LqrMixin, EstimatorMixin, param.Parameterized):
     """Everything one workbench session knows about the design being edited.
 
     Set the inputs through the methods (``set_gain``, ``set_entry``, ``drag_pole``,
@@ -91,6 +96,16 @@ class DesignState(LoadingMixin, LqrMixin, param.Parameterized):
     )
     specs = param.ClassSelector(class_=core.DesignSpecs, default=None, allow_None=True,
                                 doc="Design specifications checked and shaded on the pole map.")
+    estimator = param.Parameter(default=None, doc="The estimator (EstimatorDesign: form, L, how it was made), "
+                                                  "or None for full-state feedback.")
+    editing = param.Selector(default="controller", objects=list(EDITING_MODES),
+                             doc="What sliders, pole drags and typed targets change: K or the estimator's L.")
+    estimator_selected_entry = param.Tuple(default=(0, 0), length=2,
+                                           doc="Zero-based (row, column) of the entry of L whose locus is shown.")
+    estimator_evaluation = param.Parameter(default=None, constant=True,
+                                           doc="The core's evaluation of the compensator shown, or None.")
+    kalman_result = param.Parameter(default=None, constant=True,
+                                    doc="The last Kalman design (error covariance, noise used), or None.")
     evaluation = param.Parameter(default=None, constant=True,
                                  doc="The core's evaluation of the design shown (read only).")
     detail = param.Selector(default=Detail.COMPLETE, objects=list(Detail), constant=True,
@@ -118,7 +133,7 @@ class DesignState(LoadingMixin, LqrMixin, param.Parameterized):
     def __init__(self, plant: core.Plant, *, plant_label: str = "", plant_text: str = "", gain=None,
                  refresh: RefreshPolicy | None = None, runner=None, first_detail: Detail = Detail.COMPLETE,
                  **params):
-        self.history = UndoHistory()
+        self.history = UndoHistory(same=same_point, copy=lambda point: point)  # points hold copies already
         self.gain_log = GainLog()
         self.refresh = refresh if refresh is not None else RefreshPolicy(texts_at_least_every=0.0)
         self.runner = runner if runner is not None else InlineRunner()
@@ -189,14 +204,19 @@ class DesignState(LoadingMixin, LqrMixin, param.Parameterized):
         shown = self.evaluation
         same_plant = shown is not None and shown.plant is self.plant
         options = self._options(detail, previous=shown.view_ranges if same_plant else None)
+        settings = self.estimator
+        shown_estimator = self.estimator_evaluation if same_plant else None
         request = EvaluationRequest(sequence=self._sequence, plant=self.plant, gain=np.array(self.gain, copy=True),
                                     options=options, detail=detail, inputs=self._inputs(), refine=refine,
-                                    targets=None if targets is None else tuple(complex(t) for t in targets))
+                                    targets=None if targets is None else tuple(complex(t) for t in targets),
+                                    estimator_gain=None if settings is None else np.array(settings.gain, copy=True),
+                                    estimator_options=self._estimator_options(detail, shown_estimator))
         if targets is not None:
             self._on_placed[request.sequence] = on_placed
         cache, key = self.evaluation_cache, None
         if cache is not None and refine is None and targets is None:
-            key = (id(self.plant), id(self.specs), self.gain.shape, self.gain.tobytes(), self.selected_entry, detail)
+            key = (id(self.plant), id(self.specs), self.gain.shape, self.gain.tobytes(), self.selected_entry, detail,
+                   id(settings), self.editing, self.estimator_selected_entry)
             found = cache.get(key, self.plant, self.specs)
             if found is not None:
                 self._deliver(request, found, None)
@@ -234,15 +254,21 @@ class DesignState(LoadingMixin, LqrMixin, param.Parameterized):
         inputs = request.inputs
         if isinstance(evaluation, Placed):
             placed, evaluation = evaluation, evaluation.evaluation
-            inputs = dict(inputs, gain=placed.evaluation.gain)
+            design = evaluation.design if isinstance(evaluation, core.ObserverDesignEvaluation) else evaluation
+            inputs = dict(inputs, gain=design.gain)
             if request.sequence == self._sequence:  # a newer change would be overwritten
                 with param.discard_events(self):
-                    self.gain = np.array(placed.evaluation.gain, copy=True)
+                    self.gain = np.array(design.gain, copy=True)
             if on_placed is not None:
                 on_placed(placed.placement)
         self._shown_sequence = request.sequence
         self._shown_inputs = inputs
+        compensator = None
+        if isinstance(evaluation, core.ObserverDesignEvaluation):
+            evaluation, compensator = evaluation.design, evaluation.compensator
         with param.edit_constant(self):
+            # the compensator first: views redrawn on a new evaluation find the matching one
+            self.param.update(estimator_evaluation=compensator)
             self.param.update(evaluation=evaluation, detail=request.detail, revision=self.revision + 1)
 
     def _report_failure(self, error: BaseException, action: str = "") -> None:
@@ -330,16 +356,20 @@ class DesignState(LoadingMixin, LqrMixin, param.Parameterized):
         accepted = False
         with self._reporting("use this gain"):
             checked = self.plant.check_gain(gain)
-            before = self.gain.copy()
-            self._set_inputs(self.refresh.step() if live else self.refresh.release(), gain=checked)
-            if live:
-                self.history.live_step(before)
-            else:
-                self.history.accepted(before, checked)
-                self._sync_history_depths()
+            self._change_design({"gain": checked}, live=live, note=note)
             accepted = True
-            self._after_gain_change(note, live)
         return accepted
+
+    def _change_design(self, changes: dict, *, live: bool, note: str = "") -> None:
+        """Apply changes of K and/or the estimator as one step of the undo history (raises on failure)."""
+        before = self._point()
+        self._set_inputs(self.refresh.step() if live else self.refresh.release(), **changes)
+        if live:
+            self.history.live_step(before)
+        else:
+            self.history.accepted(before, self._point())
+            self._sync_history_depths()
+        self._after_gain_change(note, live)
 
     def _after_gain_change(self, note: str, live: bool) -> None:
         """Show ``note`` (or clear the message) and, outside a gesture, commit the change."""
@@ -380,7 +410,8 @@ class DesignState(LoadingMixin, LqrMixin, param.Parameterized):
     def end_gesture(self) -> None:
         """Close a live gesture (slider or drag release) so it becomes one undo step."""
         if self.history.in_gesture:
-            self.set_gain(self.gain)
+            with self._reporting("finish the change"):
+                self._change_design({}, live=False)
 
     def set_gain_text(self, text: str) -> bool:
         """Set K from text such as ``[[199, 55, 8]]`` (JSON rows, as the K readout shows)."""
@@ -399,12 +430,15 @@ class DesignState(LoadingMixin, LqrMixin, param.Parameterized):
 
     def _history_step(self, *, back: bool) -> bool:
         """One undo (``back``) or redo step; False when there is none."""
-        target = self.history.step(self.gain, back=back)
+        target = self.history.step(self._point(), back=back)
         if target is None:
             return False
         with self._reporting("undo" if back else "redo"):
             try:
-                self._set_inputs(self.refresh.release(), gain=target)
+                changes = {"gain": target.gain, "estimator": target.estimator}
+                if target.estimator is None and self.editing == "estimator":
+                    changes["editing"] = "controller"
+                self._set_inputs(self.refresh.release(), **changes)
             except BaseException:
                 self.history.revert_step(back=back)
                 raise
@@ -449,7 +483,10 @@ class DesignState(LoadingMixin, LqrMixin, param.Parameterized):
     # -- pole dragging -----------------------------------------------------------------------
 
     def begin_drag(self, index: int) -> bool:
-        """Start dragging closed-loop pole ``index`` (as ordered in ``evaluation.closed_loop.poles``)."""
+        """Start dragging closed-loop pole ``index`` (as ordered in ``evaluation.closed_loop.poles``);
+        editing the estimator, estimator pole ``index`` (in ``estimator_evaluation.estimator_poles.poles``)."""
+        if self.editing == "estimator":
+            return self._begin_estimator_drag(index)
         poles = tuple(self.evaluation.closed_loop.poles)
         if not 0 <= index < len(poles):
             return False
@@ -490,6 +527,13 @@ class DesignState(LoadingMixin, LqrMixin, param.Parameterized):
         drag = self._drag
         if not live:
             self._drag = None  # the release ends the drag whatever happens next
+        if drag.get("kind") == "estimator":
+            accepted = False
+            with self._reporting("place the estimator poles there"):
+                accepted = self._drag_estimator_pole(drag, target, live=live, snap_distance=snap_distance)
+            if not live:
+                self.end_gesture()
+            return accepted
         with self._reporting("place the poles there"):
             request = targets_after_drag(
                 drag["poles"], drag["index"], target, snap_distance=snap_distance, movable=drag["movable"]
@@ -517,7 +561,9 @@ class DesignState(LoadingMixin, LqrMixin, param.Parameterized):
         return self.evaluation.closed_loop_movable
 
     def place_poles(self, targets) -> bool:
-        """Compute K by pole assignment for a full list of target poles (typed in)."""
+        """Compute K by pole assignment for a full list of target poles (typed in); L when editing the estimator."""
+        if self.editing == "estimator":
+            return self.place_estimator_poles(targets)
         with self._reporting("place the poles there"):
             return self._place(list(targets), live=False, note="")
         return False
@@ -528,7 +574,7 @@ class DesignState(LoadingMixin, LqrMixin, param.Parameterized):
         Returns whether the assignment was accepted (always True when it runs later: a failure
         is then shown when it arrives, and the design stays).
         """
-        before = self.gain.copy()
+        before = self._point()
         placed = []
 
         def take_over(placement) -> None:
@@ -536,7 +582,7 @@ class DesignState(LoadingMixin, LqrMixin, param.Parameterized):
             if live:
                 self.history.live_step(before)
             else:
-                self.history.accepted(before, self.gain)
+                self.history.accepted(before, self._point())
                 self._sync_history_depths()
             self.placement_summary = f"{placement.method}. {placement.note}".strip()
             words = note

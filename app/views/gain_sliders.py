@@ -20,7 +20,7 @@ from ..scheduling import guarded
 from ..theme import PALETTE, entry_symbol, format_number
 from .html_box import HtmlBox
 
-__all__ = ["GainSliders", "EntryControls", "PromptSlider", "entry_units"]
+__all__ = ["GainSliders", "EntryControls", "PromptSlider", "EntryActions", "entry_units"]
 
 SLIDER_WIDTH = 320
 STRIP_HEIGHT = 10
@@ -105,7 +105,62 @@ def interval_strip_svg(low: float, high: float, value: float, intervals, width: 
     )
 
 
-class EntryControls:
+class EntryActions:
+    """What the slider and the number box of one entry do: set state, nothing else.
+
+    Subclasses give ``owner`` (with ``state``, ``scheduler`` and ``syncing``), ``symbol``,
+    ``key`` (the latest-only scheduling key) and ``apply(value, live)``.
+    """
+
+    def _connect(self, select) -> None:
+        """Watch the slider and the number box; the locus button calls ``select()``."""
+        guard = guarded(lambda text: self.owner.state.show_message(text, "error"))
+        self.slider.param.watch(guard(self._slider_moved), "value")
+        self.slider.param.watch(guard(self._slider_released), "value_throttled")
+        self.number.param.watch(guard(self._typed), "value")
+        self.locus_button.on_click(lambda event: select())
+
+    def show_number(self, value: float) -> None:
+        """Only the number box (during a gesture, see :meth:`_show_value`)."""
+        if self.number.value is None or float(self.number.value) != value:
+            self.number.value = value
+
+    def _show_value(self, value: float, slider_range, selected: bool) -> None:
+        """The number box, the slider (range and position) and the locus button for ``value``."""
+        self.show_number(value)
+        low, high = slider_range.low, slider_range.high
+        if self.slider.start != low or self.slider.end != high:
+            self.slider.param.update(start=low, end=high, step=slider_range.step)
+        # Shown during a gesture, the handle stays where the user holds it: the design shown may be a
+        # step behind, and setting it would pull the handle back under the mouse (found with the
+        # browser benchmark: a drag stalled at its first reversal). It follows on release (complete).
+        if not detail_options(self.owner.state.detail).gesture and float(self.slider.value) != value:
+            self.slider.value = min(max(value, low), high)
+        self.locus_button.color = "primary" if selected else "light"
+
+    def _slider_moved(self, event) -> None:
+        if self.owner.syncing:
+            return
+        value = float(event.new)
+        self.owner.scheduler.submit(self.key, lambda: self.apply(value, live=True))
+
+    def _slider_released(self, event) -> None:
+        if self.owner.syncing or event.new is None:
+            return
+        self.owner.scheduler.discard(self.key)
+        self.apply(float(event.new))
+
+    def _typed(self, event) -> None:
+        if self.owner.syncing or event.new is None:
+            return
+        value = float(event.new)
+        if not math.isfinite(value):
+            self.owner.state.show_message(f"{self.symbol} must be a finite number.", "error")
+            return
+        self.apply(value)
+
+
+class EntryControls(EntryActions):
     """Widgets of one gain entry: name and units, number box, locus button, slider and stable strip.
 
     ``owner`` gives ``state``, ``scheduler``, ``css`` and the ``syncing`` flag (set while the
@@ -139,57 +194,29 @@ class EntryControls:
             margin=(2, 0, 6, 0),
             css_classes=["gb-entry"],
         )
-        guard = guarded(lambda text: owner.state.show_message(text, "error"))
-        self.slider.param.watch(guard(self._slider_moved), "value")
-        self.slider.param.watch(guard(self._slider_released), "value_throttled")
-        self.number.param.watch(guard(self._typed), "value")
-        self.locus_button.on_click(lambda event: owner.state.select_entry(self.row, self.col))
+        self._connect(lambda: owner.state.select_entry(self.row, self.col))
 
     def retarget(self, row: int, col: int) -> None:
         """Show entry (row, col) from now on (the tests and the key listener find it by its classes)."""
         if (row, col) == (self.row, self.col):
             return
-        self.owner.scheduler.discard(("entry", self.row, self.col))
+        self.owner.scheduler.discard(self.key)
         self.row, self.col, self.symbol = row, col, entry_symbol(row, col)
         self.number.css_classes = [f"gb-number-{row + 1}-{col + 1}"]
         self.slider.css_classes = [f"gb-slider-{row + 1}-{col + 1}"]
         self.strip.panel.css_classes = [f"gb-strip-{row + 1}-{col + 1}"]
         self.locus_button.description = f"Show the locus of {self.symbol} on the pole map"
 
-    # user actions: only ever set state
+    # user actions: only ever set state (see EntryActions)
 
-    def _slider_moved(self, event) -> None:
-        if self.owner.syncing:
-            return
-        value = float(event.new)
-        self.owner.scheduler.submit(("entry", self.row, self.col),
-                                    lambda: self.owner.state.set_entry(self.row, self.col, value, live=True))
+    @property
+    def key(self):
+        return ("entry", self.row, self.col)
 
-    def _slider_released(self, event) -> None:
-        if self.owner.syncing or event.new is None:
-            return
-        self.owner.scheduler.discard(("entry", self.row, self.col))
-        self.owner.state.set_entry(self.row, self.col, float(event.new))
-
-    def _typed(self, event) -> None:
-        if self.owner.syncing or event.new is None:
-            return
-        value = float(event.new)
-        if not math.isfinite(value):
-            self.owner.state.show_message(f"{self.symbol} must be a finite number.", "error")
-            return
-        self.owner.state.set_entry(self.row, self.col, value)
+    def apply(self, value: float, live: bool = False) -> None:
+        self.owner.state.set_entry(self.row, self.col, value, live=live)
 
     # refreshing from an evaluation
-
-    def show_number(self, value: float) -> None:
-        if self.number.value is None or float(self.number.value) != value:
-            self.number.value = value
-
-    def show_value(self, value: float) -> None:
-        self.show_number(value)
-        if float(self.slider.value) != value:
-            self.slider.value = min(max(value, self.slider.start), self.slider.end)
 
     def show(self, evaluation, value: float, selected: bool) -> None:
         plant = evaluation.plant
@@ -202,17 +229,8 @@ class EntryControls:
             + (f'<br><span class="gb-units">{escape(units)}</span>' if units else "")
             + "</div>"
         )
+        self._show_value(value, slider_range, selected)
         low, high = slider_range.low, slider_range.high
-        if self.slider.start != low or self.slider.end != high:
-            self.slider.param.update(start=low, end=high, step=slider_range.step)
-        if detail_options(self.owner.state.detail).gesture:
-            # Shown during a gesture: the handle is where the user holds it, and the design shown may
-            # be a step behind (setting it would pull the handle back under the mouse). It follows
-            # on release, which is always complete.
-            self.show_number(value)
-        else:
-            self.show_value(value)
-        self.locus_button.color = "primary" if selected else "light"
         text = _interval_text(self.symbol, intervals, high - low)
         badge = ""
         if intervals is not None:
