@@ -83,7 +83,16 @@ def plant_from_mapping(data: dict, source: str = "plant file") -> Plant:
     ------
     PlantError
         With a message prefixed by ``source`` that names the key at fault.
+
+    Notes
+    -----
+    A plant file with ``[parameters]``, ``[[operating_points]]`` or expression entries
+    describes a family of models; this returns its nominal model (see ``load_plant_family_file``).
     """
+    from ._plant_family import is_family_mapping, plant_family_from_mapping
+
+    if is_family_mapping(data):
+        return plant_family_from_mapping(data, source).nominal
     try:
         return _plant_from_mapping(data)
     except PlantError as error:
