@@ -407,18 +407,13 @@ def _split_model(model: dict, parameters) -> tuple[dict, list]:
     return numeric, expressions
 
 
-def _has_expressions(data: dict) -> bool:
-    model = data.get("model")
-    if not isinstance(model, dict):
-        return False
-    return any(isinstance(entry, str)
-               for key in EXPRESSION_MATRICES if isinstance(model.get(key), list)
-               for row in model[key] if isinstance(row, list) for entry in row)
-
-
 def is_family_mapping(data: dict) -> bool:
-    """Whether parsed plant-file data uses parameters, operating points or expressions."""
-    return isinstance(data, dict) and ("parameters" in data or "operating_points" in data or _has_expressions(data))
+    """Whether parsed plant-file data describes a family (it has parameters or operating points).
+
+    Without a ``[parameters]`` table a string in a matrix stays what it always was: an error
+    of the single-model reader ("A contains 'a', which is not a real number").
+    """
+    return isinstance(data, dict) and ("parameters" in data or "operating_points" in data)
 
 
 def plant_family_from_mapping(data: dict, source: str = "plant file") -> PlantFamily:
