@@ -22,3 +22,5 @@ from ._sampling_check import *  # noqa: F401,F403
 from ._design_evaluation import *  # noqa: F401,F403
 from ._expressions import *  # noqa: F401,F403
 from ._plant_family import *  # noqa: F401,F403
+from ._robustness import *  # noqa: F401,F403
+from ._monte_carlo import *  # noqa: F401,F403
