@@ -31,7 +31,7 @@ from ._errors import PlantError
 __all__ = ["EXPRESSION_FUNCTIONS", "MAX_EXPRESSION_LENGTH", "ParameterExpression", "parse_expression"]
 
 #: Longest expression text accepted, in characters; a physical formula for one entry is short.
-MAX_EXPRESSION_LENGTH = 200
+MAX_EXPRESSION_LENGTH = 300
 #: Deepest nesting of operations accepted (keeps evaluation well inside Python's recursion limit).
 _MAX_DEPTH = 40
 
