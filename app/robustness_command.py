@@ -72,7 +72,7 @@ def command_robustness(args) -> int:
         raise UsageError(f"--require-stable-fraction must lie between 0 and 1, got {required}")
 
     points = core.evaluate_operating_points(family, gain, specs=specs)
-    needs_margins = specs is not None and (specs.min_gain_margin_db is not None or specs.min_phase_margin_deg is not None)
+    needs_margins = core.margins_needed(specs)
     result, where, note = None, None, ""
     if family.varying_parameters:
         plan = core.plan_monte_carlo(family, gain, samples=args.samples, seed=args.seed, specs=specs,

@@ -29,6 +29,7 @@ import panel as pn
 from gainboard import core
 
 from .autosave import AutosaveStore
+from .robustness_state import RobustnessState
 from .rooms import ROOM_PARAMETER, ROOMS, RoomMember, check_room_name
 from .scheduling import LatestOnly
 from .snapshot import SNAPSHOT_PARAMETER, design_from_snapshot, snapshot_url
@@ -43,6 +44,7 @@ from .views.lqr_panel import LqrPanel
 from .views.plant_panel import PlantPanel
 from .views.pole_map import PoleMap, entry_symbol
 from .views.responses import ResponsePlots
+from .views.robustness_panel import RobustnessPanel
 from .views.share_panel import SharePanel
 from .views.tables import TABLE_CSS, ChecksTable, PoleTable
 
@@ -148,6 +150,10 @@ class Workbench:
         self.share_panel.show_nickname(self.nickname)
         self.views = [self.pole_map, self.sliders, self.design_bar, self.responses, self.pole_table,
                       self.checks, self.plant_panel, self.lqr_panel, self.file_panel]
+        # Operating points and sampling follow the state on their own; a sampling runs in a
+        # background thread and reports back through this session's event loop.
+        self.robust = RobustnessState(state, deliver=self.run_in_session, background=document is not None)
+        self.robust_panel = RobustnessPanel(self.robust, self.pole_map.figure, self._slider_range)
 
         self.header = HtmlBox(css=HEADER_CSS, width=PAGE_WIDTH, height=30, margin=(6, 10, 0, 10), name="header")
         self.caution = pn.pane.HTML(
@@ -228,6 +234,7 @@ class Workbench:
             ("Responses", scrolling(self.responses.panel, 478)),
             ("Checks", scrolling(self.checks.panel, 478)),
             ("Poles", scrolling(self.pole_table.panel, 478)),
+            ("Robust", scrolling(self.robust_panel.panel, 478)),
             width=480, margin=(0, 5), dynamic=False,
         )
         return pn.Column(
@@ -240,6 +247,13 @@ class Workbench:
             margin=0,
             styles={"background": PALETTE["paper"]},
         )
+
+    def _slider_range(self, row: int, col: int) -> tuple[float, float]:
+        """The range the gain slider of k[row, col] shows (the robustness strips line up with it)."""
+        controls = getattr(self.sliders, "_controls", {}).get((row, col))
+        if controls is not None and controls.range is not None:
+            return controls.range
+        return core.default_entry_range(self.state.plant, self.state.gain, row, col)
 
     # -- refresh cycle ------------------------------------------------------------------------
 
@@ -635,6 +649,7 @@ class Workbench:
         if self._closed:
             return
         self._closed = True
+        self.robust.cancel_sampling()  # a sampling for a closed page would only take CPU from others
         if self.room is not None and self.member is not None:
             self.room.leave(self.member)
         self.room = self.member = None

@@ -31,6 +31,7 @@ from ._specs import DesignSpecs
 
 __all__ = [
     "SAMPLING_CAUTION",
+    "MAX_SAMPLES",
     "SamplingCancelled",
     "FractionEstimate",
     "wilson_interval",
@@ -39,6 +40,7 @@ __all__ = [
     "ChunkSummary",
     "MonteCarloResult",
     "plan_monte_carlo",
+    "margins_needed",
     "evaluate_chunk",
     "combine_chunks",
     "run_monte_carlo",
@@ -183,6 +185,11 @@ class MonteCarloPlan:
                 reasons[name] = ("margins per sample were not asked for" if not self.include_margins else
                                  "margins per sample are computed for single-input plants only")
         return reasons
+
+
+def margins_needed(specs: DesignSpecs | None) -> bool:
+    """Whether sampling needs margins per sample: only when a margin spec is given (they cost the most)."""
+    return specs is not None and (specs.min_gain_margin_db is not None or specs.min_phase_margin_deg is not None)
 
 
 def plan_monte_carlo(family: PlantFamily, gain, samples: int, seed: int, specs: DesignSpecs | None = None,

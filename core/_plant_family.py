@@ -19,7 +19,7 @@ import numpy as np
 import scipy.special
 
 from ._errors import PlantError
-from ._expressions import ParameterExpression, parse_expression
+from ._expressions import parse_expression
 from ._plant import Plant
 
 __all__ = [

@@ -15,6 +15,7 @@ practice.
 from __future__ import annotations
 
 import math
+import warnings
 from dataclasses import dataclass
 
 import numpy as np
@@ -33,6 +34,8 @@ __all__ = [
     "intersect_intervals",
     "ParameterBoundary",
     "parameter_boundaries",
+    "ResponseEnvelope",
+    "response_envelope",
 ]
 
 
@@ -143,6 +146,68 @@ def evaluate_operating_points(family: PlantFamily, gain, specs=None, include_mar
     all_specs = None if any(r is None for r in reports) else all(r.all_passed for r in reports)
     worst = min(points, key=lambda p: p.evaluation.closed_loop.stability_margin)
     return OperatingPointsReport(tuple(points), all(p.stable for p in points), all_specs, worst.name)
+
+
+@dataclass(frozen=True)
+class ResponseEnvelope:
+    """One output's response over every operating point, and the band it sweeps.
+
+    Attributes
+    ----------
+    kind : str
+        ``"step"``, ``"initial"`` or ``"disturbance"``.
+    output_name : str
+    time : ndarray, shape (N,)
+        The longest of the points' time grids (s): each point's horizon follows its own slowest pole.
+    lower, upper : ndarray, shape (N,)
+        Smallest and largest value over the points at each time (each point's response
+        interpolated linearly onto ``time``; nan where a response ended early by diverging).
+    traces : dict
+        Point name → (time, values) as simulated.
+    """
+
+    kind: str
+    output_name: str
+    time: np.ndarray
+    lower: np.ndarray
+    upper: np.ndarray
+    traces: dict
+
+
+def response_envelope(report: OperatingPointsReport, kind: str = "step", output: int | None = None) -> ResponseEnvelope | None:
+    """The band one output's response sweeps over the operating points.
+
+    Parameters
+    ----------
+    report : OperatingPointsReport
+    kind : {"step", "initial", "disturbance"}
+    output : int, optional
+        Zero-based output; the first tracked output for a step, else the first output.
+
+    Returns
+    -------
+    ResponseEnvelope or None
+        None when the nominal model has no such response (no prefilter for a step).
+    """
+    nominal = report.points[0].evaluation
+    plant = nominal.plant
+    if output is None:
+        output = plant.tracked_outputs[0] if kind == "step" else 0
+    if getattr(nominal.responses, kind) is None:
+        return None
+    traces = {}
+    for point in report.points:
+        response = getattr(point.evaluation.responses, kind)
+        if response is not None:
+            traces[point.name] = (np.asarray(response.time, dtype=float),
+                                  np.asarray(response.outputs, dtype=float)[:, output])
+    time = max((t for t, _ in traces.values()), key=lambda t: t[-1])
+    stacked = [np.where(time <= t[-1], np.interp(time, t, y), np.nan) for t, y in traces.values()]
+    values = np.vstack(stacked)
+    with warnings.catch_warnings():  # a time at which every response has ended early stays nan
+        warnings.simplefilter("ignore", RuntimeWarning)
+        lower, upper = np.nanmin(values, axis=0), np.nanmax(values, axis=0)
+    return ResponseEnvelope(kind, plant.output_names[output], time, lower, upper, traces)
 
 
 # -- gain entries stable on every model -----------------------------------------------------------
