@@ -82,8 +82,8 @@ class RobustnessState(param.Parameterized):
     def _family_for(self, plant: core.Plant):
         """The family whose nominal model is exactly the design's plant, else (None, reason)."""
         text = self.design.plant_text
-        if (text, plant) == self._family_source:
-            return self.family, self.family_note
+        if self._family_source is not None and self._family_source[:2] == (text, plant):
+            return self._family_source[2:]
         family, note = None, ""
         try:
             family = core.parse_plant_family_text(text) if text else None
@@ -95,7 +95,7 @@ class RobustnessState(param.Parameterized):
                 or family.nominal.sample_time != plant.sample_time:
             family, note = None, ("The plant was changed after it was loaded (edited or sampled), so its "
                                   "parameters and operating points no longer apply.")
-        self._family_source = (text, plant)
+        self._family_source = (text, plant, family, note)
         return family, note
 
     def refresh(self) -> None:

@@ -18,7 +18,7 @@ from bokeh.plotting import figure
 
 from gainboard import core
 
-from ..theme import format_number, trace_colour
+from ..theme import format_number, format_relative, trace_colour
 from .data_sources import update_source
 from .gain_sliders import SLIDER_WIDTH, interval_strip_svg
 from .html_box import HtmlBox
@@ -98,19 +98,22 @@ class RobustnessPanel:
         self.envelope_figure.multi_line("xs", "ys", source=self.traces_source, line_color="colour", line_width=1.4)
         self.strips = HtmlBox(css=CSS, width=WIDTH, name="common_ranges")
 
-        self.parameter_choice = pn.widgets.Select(name="parameter", options=[], width=200, margin=(2, 5))
-        self.parameter_slider = pn.widgets.FloatSlider(name="value", start=0.0, end=1.0, value=0.0, step=0.01,
-                                                       width=230, margin=(2, 5))
+        self.parameter_choice = pn.widgets.Select(label="parameter", options=[], width=200, margin=(2, 5),
+                                                  css_classes=["gb-robust-parameter"])
+        self.parameter_slider = pn.widgets.FloatSlider(label="value", start=0.0, end=1.0, value=0.0, step=0.01,
+                                                       width=230, margin=(2, 5), css_classes=["gb-robust-value"])
         self.moved_text = HtmlBox(css=CSS, width=WIDTH, name="moved_parameter_text")
-        self.samples = pn.widgets.IntInput(name="samples", value=robust.samples, start=1, end=core.MAX_SAMPLES,
-                                           width=110, margin=(2, 5))
-        self.seed = pn.widgets.IntInput(name="seed", value=robust.seed, start=0, width=90, margin=(2, 5))
-        self.scheduler = pn.widgets.TextInput(name="Dask scheduler (optional)", placeholder="tcp://host:8786",
-                                              value=robust.scheduler, width=200, margin=(2, 5))
+        self.samples = pn.widgets.IntInput(label="samples", value=robust.samples, start=1, end=core.MAX_SAMPLES,
+                                           width=110, margin=(2, 5), css_classes=["gb-robust-samples"])
+        self.seed = pn.widgets.IntInput(label="seed", value=robust.seed, start=0, width=90, margin=(2, 5),
+                                        css_classes=["gb-robust-seed"])
+        self.scheduler = pn.widgets.TextInput(label="Dask scheduler (optional)", placeholder="tcp://host:8786",
+                                              value=robust.scheduler, width=200, margin=(2, 5),
+                                              css_classes=["gb-robust-scheduler"])
         self.run_button = pn.widgets.Button(label="Sample", color="primary", width=90, margin=(20, 5, 2, 5))
         self.cancel_button = pn.widgets.Button(label="Cancel", width=80, margin=(20, 5, 2, 5), disabled=True)
         self.progress = pn.indicators.Progress(value=0, max=1000, width=WIDTH - 20, height=12, margin=(4, 5),
-                                               visible=False, name="sampling_progress")
+                                               visible=False)
         self.result_box = HtmlBox(css=CSS, width=WIDTH, name="sampling_result")
 
         self._syncing = False
@@ -204,8 +207,13 @@ class RobustnessPanel:
         verdict = ('<span class="gb-pass">stable at every operating point</span>' if report.all_stable
                    else f'<span class="gb-fail">NOT stable at every operating point</span> (worst: '
                         f'{escape(report.worst_point)})')
+        legend = ("On the pole map: × nominal, " + ", ".join(
+            f"<span class='gb-glyph'>{POINT_GLYPHS[_marker(i)]}</span> {escape(point.name)}"
+            for i, point in enumerate(report.points) if i > 0)
+            + ", <span style='color:" + CLOUD_COLOUR + "'>faint dots</span> sampled models, "
+            "<span style='color:" + MOVED_COLOUR + "'>○</span> the moved parameter.")
         self.summary.object = (
-            f"<div class='gb-note'>{verdict}</div>"
+            f"<div class='gb-note'>{verdict}</div><div class='gb-small'>{legend}</div>"
             "<table class='gb-table'><tr><th>parameter</th><th>nominal</th><th>unit</th><th>sampled as</th></tr>"
             + "".join(rows) + "</table>"
         )
@@ -263,7 +271,8 @@ class RobustnessPanel:
             low, high = self.slider_range(row, col)
             value = float(gain[row, col])
             inside = any(a < value < b for a, b in found.intervals)
-            text = " or ".join(f"{format_number(a, 4)} &lt; {entry_symbol(row, col)} &lt; {format_number(b, 4)}"
+            span = high - low  # rounding noise far below the slider's span reads 0, as under the sliders
+            text = " or ".join(f"{format_relative(a, span)} &lt; {entry_symbol(row, col)} &lt; {format_relative(b, span)}"
                                if math.isfinite(a) or math.isfinite(b) else "any value"
                                for a, b in found.intervals) or "no value"
             limits = sorted(set(found.limiting_model.values()))
@@ -290,7 +299,7 @@ class RobustnessPanel:
                     low, high = parameter.nominal - span, parameter.nominal + span
                 self.parameter_slider.param.update(start=low, end=high, step=(high - low) / 200,
                                                    value=min(max(robust.moved_value, low), high),
-                                                   name=f"{parameter.name} ({parameter.unit})" if parameter.unit
+                                                   label=f"{parameter.name} ({parameter.unit})" if parameter.unit
                                                    else parameter.name)
         finally:
             self._syncing = False
