@@ -78,7 +78,8 @@ class RobustnessPanel:
         self.cloud_source = ColumnDataSource({"x": [], "y": []}, name="sampled_cloud")
         self.points_source = ColumnDataSource({"x": [], "y": [], "marker": [], "name": []}, name="operating_points")
         self.moved_source = ColumnDataSource({"x": [], "y": []}, name="moved_parameter_poles")
-        cloud = pole_figure.scatter("x", "y", source=self.cloud_source, size=3, color=CLOUD_COLOUR, alpha=0.12,
+        # faint enough that 10 000 overlapping samples shade a density rather than a solid blot
+        cloud = pole_figure.scatter("x", "y", source=self.cloud_source, size=2.5, color=CLOUD_COLOUR, alpha=0.05,
                                     line_alpha=0, name="cloud")
         # the cloud goes under everything else; the operating points above the locus
         pole_figure.renderers = [cloud, *[r for r in pole_figure.renderers if r is not cloud]]
