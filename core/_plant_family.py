@@ -11,7 +11,6 @@ without these tables means exactly what it meant before.
 from __future__ import annotations
 
 import math
-import tomllib
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 
@@ -456,15 +455,9 @@ def plant_family_from_mapping(data: dict, source: str = "plant file") -> PlantFa
 
 def parse_plant_family_text(text: str, source: str = "plant file") -> PlantFamily:
     """Parse the TOML text of a plant file into a :class:`PlantFamily`."""
-    from ._plant_file import MAX_PLANT_FILE_BYTES
+    from ._plant_file import toml_document
 
-    if len(text.encode("utf-8", errors="replace")) > MAX_PLANT_FILE_BYTES:
-        raise PlantError(f"{source}: the file is larger than {MAX_PLANT_FILE_BYTES // 1000} kB; is it really a plant file?")
-    try:
-        data = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as error:
-        raise PlantError(f"{source}: not valid TOML ({error})") from None
-    return plant_family_from_mapping(data, source)
+    return plant_family_from_mapping(toml_document(text, source), source)
 
 
 def load_plant_family_file(path) -> PlantFamily:

@@ -172,13 +172,17 @@ def parse_plant_text(text: str, source: str = "plant file") -> Plant:
     >>> plant.state_count
     1
     """
+    return plant_from_mapping(toml_document(text, source), source)
+
+
+def toml_document(text: str, source: str) -> dict:
+    """The parsed TOML of a plant file's text, refusing oversized text and bad TOML (shared by the readers)."""
     if len(text.encode("utf-8", errors="replace")) > MAX_PLANT_FILE_BYTES:
         raise PlantError(f"{source}: the file is larger than {MAX_PLANT_FILE_BYTES // 1000} kB; is it really a plant file?")
     try:
-        data = tomllib.loads(text)
+        return tomllib.loads(text)
     except tomllib.TOMLDecodeError as error:
         raise PlantError(f"{source}: not valid TOML ({error})") from None
-    return plant_from_mapping(data, source)
 
 
 def load_plant_file(path) -> Plant:

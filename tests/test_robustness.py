@@ -84,11 +84,14 @@ def _solve_all(conditions, symbol):
 
 # -- Monte Carlo against closed-form stability regions -------------------------------------------
 
-
-@pytest.mark.parametrize("text, gain, exact", [
+#: The continuous cubic (Routh–Hurwitz) and the sampled quadratic (Jury), each with its exact stable set of g.
+CLOSED_FORM_FAMILIES = pytest.mark.parametrize("text, gain, exact", [
     (CUBIC_FAMILY, CUBIC_GAIN, _routh_hurwitz_interval_of_g),
     (SAMPLED_FAMILY, SAMPLED_GAIN, _jury_interval_of_g),
 ])
+
+
+@CLOSED_FORM_FAMILIES
 def test_stable_fraction_matches_the_exact_probability_within_its_confidence_interval(text, gain, exact):
     family = parse_plant_family_text(text)
     region = exact()
@@ -101,10 +104,7 @@ def test_stable_fraction_matches_the_exact_probability_within_its_confidence_int
     assert result.failed_samples == 0
 
 
-@pytest.mark.parametrize("text, gain, exact", [
-    (CUBIC_FAMILY, CUBIC_GAIN, _routh_hurwitz_interval_of_g),
-    (SAMPLED_FAMILY, SAMPLED_GAIN, _jury_interval_of_g),
-])
+@CLOSED_FORM_FAMILIES
 def test_parameter_boundaries_match_the_exact_ones(text, gain, exact):
     family = parse_plant_family_text(text)
     region = exact()

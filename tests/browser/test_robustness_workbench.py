@@ -34,6 +34,12 @@ def _open_cart(workbench):
     return gain
 
 
+def _sample(page, count: int) -> None:
+    page.locator(".gb-robust-samples input").fill(str(count))
+    page.locator(".gb-robust-samples input").press("Enter")
+    page.get_by_role("button", name="Sample", exact=True).click()
+
+
 def _cloud_size(page) -> int:
     return page.evaluate("() => Bokeh.documents[0].get_model_by_name('sampled_cloud').data.x.length")
 
@@ -54,9 +60,7 @@ def test_operating_points_and_a_sampled_cloud_of_ten_thousand_models(workbench):
     markers = page.evaluate("() => Bokeh.documents[0].get_model_by_name('operating_points').data.marker.length")
     assert markers == 4 * (len(family.models()) - 1)  # four poles per operating point besides nominal
 
-    page.locator(".gb-robust-samples input").fill("10000")
-    page.locator(".gb-robust-samples input").press("Enter")
-    page.get_by_role("button", name="Sample", exact=True).click()
+    _sample(page, 10_000)
     workbench.wait_for(lambda: _cloud_size(page) == 40_000, "10 000 sampled models (4 poles each) on the pole map",
                        timeout_ms=90_000)
     shown = page.locator(".gb-table").filter(has_text="fraction").first.inner_text()
@@ -80,9 +84,7 @@ def test_a_long_sampling_can_be_cancelled_and_never_blocks_another_session(workb
     page = workbench.page
     _open_cart(workbench)
     workbench.open_tab("Robust")
-    page.locator(".gb-robust-samples input").fill("2000000")
-    page.locator(".gb-robust-samples input").press("Enter")
-    page.get_by_role("button", name="Sample", exact=True).click()
+    _sample(page, 2_000_000)
     page.locator(".bk-progress, progress").first.wait_for(state="visible")
 
     # another person's session keeps answering while this one samples
