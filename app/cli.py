@@ -19,6 +19,7 @@ import numpy as np
 from gainboard import core
 
 from . import cli_output
+from .pole_list import parse_pole_list
 from .robustness_command import add_robustness_parser
 
 #: Options whose value may start with '-' (negative poles, gains, states).
@@ -63,21 +64,6 @@ def resolve_model(args) -> core.Plant:
 
     path, _ = resolve_plant_reference(args.plant)
     return core.load_plant_family_file(path).model(name).plant
-
-
-def parse_poles(text: str) -> list[complex]:
-    """Parse ``"-2+4j,-2-4j,-10"`` (``i`` accepted for ``j``) into complex numbers."""
-    poles = []
-    for piece in text.replace(" ", "").split(","):
-        if not piece:
-            continue
-        try:
-            poles.append(complex(piece.replace("i", "j")))
-        except ValueError:
-            raise UsageError(f"cannot read pole {piece!r}; write poles like -2+4j,-2-4j,-10") from None
-    if not poles:
-        raise UsageError("no poles given; write them like --poles \"-2+4j,-2-4j,-10\"")
-    return poles
 
 
 def parse_gain(text: str, plant: core.Plant) -> np.ndarray:
@@ -150,7 +136,7 @@ def _save_design_if_asked(args, plant: core.Plant, gain: np.ndarray, notes: str)
 
 def command_assign(args) -> int:
     plant = resolve_plant(args.plant)
-    result = core.assign_poles(plant, parse_poles(args.poles))
+    result = core.assign_poles(plant, parse_pole_list(args.poles))
     _save_design_if_asked(args, plant, result.gain, f"Poles assigned by {result.method}: {args.poles}")
     cli_output.emit(cli_output.assignment_record(plant, result), args.json, cli_output.assignment_table)
     return 0

@@ -13,6 +13,8 @@ import sys
 
 import numpy as np
 
+from . import number_text
+
 
 def json_value(value):
     """Convert numpy arrays, complex numbers and non-finite floats into plain JSON values."""
@@ -49,20 +51,15 @@ def emit(record: dict, as_json: bool, table) -> None:
 
 
 def format_number(value, digits: int = 6) -> str:
-    """A number for a table: ``inf``/``-inf`` for unbounded ends, ``—`` for undefined."""
-    if value is None:
-        return "—"
+    """A number for a table (plain text): ``inf``/``-inf`` for unbounded ends, ``—`` for undefined."""
     if isinstance(value, (list, tuple)) and len(value) == 2:
         return format_complex(value)
-    return f"{value:.{digits}g}"
+    return number_text.format_number(value, digits, plain=True)
 
 
 def format_complex(pair, digits: int = 6) -> str:
     re, im = pair
-    if im == 0:
-        return f"{re:.{digits}g}"
-    sign = "+" if im > 0 else "-"
-    return f"{re:.{digits}g} {sign} {abs(im):.{digits}g}j"
+    return number_text.format_complex(complex(re, im), digits, plain=True)
 
 
 def format_interval(interval) -> str:

@@ -22,7 +22,9 @@ import numpy as np
 from gainboard import core
 
 from .design_file import Design, DesignFileError, generator_name, write_text_atomically
-from .theme import PALETTE, SAFETY_CAUTION, format_complex, format_number, trace_colour
+from .number_text import format_complex, format_number
+from .spec_rows import spec_check_rows
+from .theme import PALETTE, SAFETY_CAUTION, trace_colour
 
 __all__ = ["design_report_html", "save_design_report"]
 
@@ -73,12 +75,6 @@ def _exact(value: float) -> str:
 
 def _with_unit(name: str, unit: str) -> str:
     return f"{escape(name)} [{escape(unit)}]" if unit else escape(name)
-
-
-def _verdict(passed) -> str:
-    if passed is None:
-        return '<span class="unknown">not evaluated</span>'
-    return '<span class="pass">pass</span>' if passed else '<span class="fail">fail</span>'
 
 
 def _table(header: list[str], rows: list[list[str]], numeric_from: int = 1) -> str:
@@ -296,17 +292,10 @@ def _spec_section(evaluation) -> str:
     report = evaluation.spec_report
     if report is None or not report.checks:
         return "<p>No specs were given for this design.</p>"
-    rows = []
-    for check in report.checks:
-        subject = f" ({escape(check.subject)})" if check.subject else ""
-        rows.append(
-            f"<tr><td>{escape(check.description)}{subject}</td><td class=\"num\">{_num(check.required)}</td>"
-            f"<td class=\"num\">{_num(check.achieved)}</td><td>{_verdict(check.passed)}</td>"
-            f"<td class=\"small\">{escape(check.detail)}</td></tr>"
-        )
+    rows = spec_check_rows(report, detail_column=True, digits=6)
     return (
         "<table><thead><tr><th>spec</th><th>required</th><th>achieved</th><th>result</th><th>decided by</th></tr>"
-        f"</thead><tbody>{''.join(rows)}</tbody></table>"
+        f"</thead><tbody>{rows}</tbody></table>"
     )
 
 

@@ -19,12 +19,16 @@ import param
 
 from gainboard import core
 
-__all__ = ["RobustnessState", "SAMPLES_CHOICES"]
+from .refresh_policy import Detail
+
+__all__ = ["RobustnessState", "SAMPLING_CAUTION", "MAX_SAMPLES"]
+
+#: Shown wherever a sampled fraction is shown (the views take it from here, not from the core).
+SAMPLING_CAUTION = core.SAMPLING_CAUTION
+MAX_SAMPLES = core.MAX_SAMPLES
 
 log = logging.getLogger(__name__)
 
-#: Sample counts offered in the workbench (the command line takes any).
-SAMPLES_CHOICES = (1000, 2000, 5000, 10_000, 20_000, 50_000, 100_000)
 #: Sampled poles kept for the pole map's cloud.
 CLOUD_SAMPLES = 10_000
 
@@ -75,9 +79,17 @@ class RobustnessState(param.Parameterized):
     # -- following the design --------------------------------------------------------------------
 
     def _on_design(self, *events) -> None:
-        if self.design.details_pending:  # a quick drag step: operating points follow on the pause
+        if self.design.detail != Detail.COMPLETE:  # a gesture step: the operating points follow its release
             return
         self.refresh()
+
+    def strip_range(self, row: int, col: int) -> tuple[float, float]:
+        """The range of the gain slider of k[row, col] (from the evaluation's view ranges), for the strips."""
+        evaluation = self.design.evaluation
+        found = evaluation.view_ranges.sliders.get((row, col)) if evaluation is not None else None
+        if found is not None:
+            return found.low, found.high
+        return core.default_entry_range(self.design.plant, self.design.gain, row, col)
 
     def _family_for(self, plant: core.Plant):
         """The family whose nominal model is exactly the design's plant, else (None, reason)."""

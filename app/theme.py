@@ -8,7 +8,7 @@ a sand-to-plum ramp for gain-graded loci. Poles are drawn as × and zeros as ○
 
 from __future__ import annotations
 
-import math
+from .number_text import format_complex, format_gain_text, format_number
 
 __all__ = [
     "PALETTE",
@@ -16,9 +16,9 @@ __all__ = [
     "LOCUS_RAMP",
     "MARKERS",
     "PAGE_CSS",
+    "TABLE_CSS",
     "SAFETY_CAUTION",
     "format_number",
-    "format_relative",
     "format_complex",
     "format_gain_text",
     "trace_colour",
@@ -137,77 +137,19 @@ def trace_colour(index: int) -> str:
     """Colour of the index-th output or input trace."""
     return TRACE_COLOURS[index % len(TRACE_COLOURS)]
 
-
-def format_number(value: float, digits: int = 4) -> str:
-    """Format a real number for display with a true minus sign.
-
-    Examples
-    --------
-    >>> format_number(-2.0)
-    '−2'
-    >>> format_number(float('inf'))
-    '∞'
-    >>> format_number(1234567.0)
-    '1.235e+06'
-    """
-    if value is None:
-        return "—"
-    value = float(value)
-    if math.isnan(value):
-        return "—"
-    if math.isinf(value):
-        return "∞" if value > 0 else "−∞"
-    text = f"{value:.{digits}g}"
-    if text in ("-0", "0"):
-        text = "0"
-    return text.replace("-", "−")
-
-
-def format_relative(value: float, scale: float, digits: int = 4) -> str:
-    """Format ``value`` shown on a scale of size ``scale``: rounding noise far below it reads 0.
-
-    Examples
-    --------
-    >>> format_relative(2.665e-14, 578.0)
-    '0'
-    >>> format_relative(-191.04, 578.0)
-    '−191'
-    """
-    if value is not None and math.isfinite(value) and scale > 0 and abs(value) < 1e-9 * scale:
-        return "0"
-    return format_number(value, digits)
-
-
-def format_complex(value: complex, digits: int = 4) -> str:
-    """Format a pole as ``a ± bj`` halves: ``−2 + 4j``, ``−2 − 4j`` or a real ``−10``.
-
-    Examples
-    --------
-    >>> format_complex(complex(-2, 4))
-    '−2 + 4j'
-    >>> format_complex(complex(-10, 0))
-    '−10'
-    """
-    value = complex(value)
-    if value.imag == 0:
-        return format_number(value.real, digits)
-    sign = "+" if value.imag > 0 else "−"
-    return f"{format_number(value.real, digits)} {sign} {format_number(abs(value.imag), digits)}j"
-
-
-def format_gain_text(gain) -> str:
-    """K as JSON rows with 12 significant digits, as `gainboard evaluate --gain` accepts.
-
-    Examples
-    --------
-    >>> format_gain_text([[199.0, 55.0, 8.0]])
-    '[[199, 55, 8]]'
-    """
-    rows = []
-    for row in gain:
-        cells = []
-        for value in row:
-            text = f"{float(value):.12g}"
-            cells.append("0" if text == "-0" else text)
-        rows.append("[" + ", ".join(cells) + "]")
-    return "[" + ", ".join(rows) + "]"
+#: Tables, headings and notes inside the workbench's text boxes (each box has its own shadow root).
+TABLE_CSS = f"""
+table.gb-table {{ border-collapse: collapse; font-size: 12.5px; width: 100%; }}
+table.gb-table th {{ text-align: left; font-weight: 600; color: {PALETTE['muted']};
+  border-bottom: 1px solid {PALETTE['rule']}; padding: 3px 6px; }}
+table.gb-table td {{ padding: 3px 6px; border-bottom: 1px solid #ece9e1; }}
+table.gb-table td.num {{ text-align: right; font-family: ui-monospace, monospace; white-space: nowrap; }}
+.gb-pass {{ color: {PALETTE['pass']}; font-weight: 700; }}
+.gb-fail {{ color: {PALETTE['fail']}; font-weight: 700; }}
+.gb-unknown {{ color: {PALETTE['muted']}; font-style: italic; }}
+.gb-fixed {{ color: {PALETTE['fixed_frame']}; font-style: italic; }}
+.gb-heading {{ font-size: 12px; font-weight: 700; text-transform: uppercase; letter-spacing: 0.06em;
+  color: {PALETTE['muted']}; margin: 8px 0 3px 0; }}
+.gb-note {{ font-size: 12px; color: {PALETTE['ink']}; line-height: 1.45; }}
+.gb-small {{ font-size: 11.5px; color: {PALETTE['muted']}; }}
+"""

@@ -30,6 +30,7 @@ from ._single_entry import _all_entry_intervals, _checked_entry_views, _sensitiv
 from ._spec_checks import check_specs, pole_region
 from ._specs import DesignSpecs
 from ._structure import StructureReport, _fixed_flags, analyze_structure, controllability_staircase
+from ._view_ranges import ViewRanges, view_ranges
 
 __all__ = ["EvaluationOptions", "DesignEvaluation", "evaluate_design", "with_all_entry_intervals"]
 
@@ -59,6 +60,13 @@ class EvaluationOptions:
         Compute loop margins at the plant input.
     include_all_entry_intervals : bool
         Compute the exact stable interval of every entry of K (for the sliders).
+    previous_view : ViewRanges, optional
+        The view ranges shown so far for this plant: kept where they still fit (see
+        :func:`view_ranges`); None after a change of plant.
+    gesture : bool
+        True while a gain or a pole is being dragged: view ranges are kept or only grow.
+    reference_poles : tuple of complex
+        More poles the pole-map frame must show (a pinned design, an LQR comparison).
     """
 
     selected_entry: tuple[int, int] | None = (0, 0)
@@ -68,6 +76,9 @@ class EvaluationOptions:
     specs: DesignSpecs | None = None
     include_margins: bool = True
     include_all_entry_intervals: bool = True
+    previous_view: ViewRanges | None = None
+    gesture: bool = False
+    reference_poles: tuple = ()
 
 
 @dataclass(frozen=True, eq=False)
@@ -106,6 +117,8 @@ class DesignEvaluation:
         For each pole of ``closed_loop.poles`` (same order), whether some gain can move it.
     messages : tuple of str
         Warnings for the user (conditioning, divergence, steps that cannot be computed).
+    view_ranges : ViewRanges or None
+        Slider ranges, the pole-map frame with the spec region, response axes (see :func:`view_ranges`).
     """
 
     plant: Plant
@@ -125,6 +138,7 @@ class DesignEvaluation:
     pole_region: object | None
     closed_loop_movable: tuple[bool, ...] = field(default=())
     messages: tuple[str, ...] = field(default=())
+    view_ranges: ViewRanges | None = None
 
 
 # Results that depend on the plant alone (structure, open-loop poles), kept while the
@@ -263,6 +277,11 @@ def evaluate_design(plant: Plant, gain, options: EvaluationOptions | None = None
         pole_region=region,
         closed_loop_movable=_closed_loop_movable(plant, K, structure, closed_loop),
         messages=tuple(messages),
+        view_ranges=view_ranges(
+            plant, K, open_loop_poles=open_loop.poles, closed_loop_poles=closed_loop.poles, selected_entry=selected,
+            sensitivity=sensitivity, pole_region=region, responses=responses, reference_poles=options.reference_poles,
+            previous=options.previous_view, gesture=options.gesture,
+        ),
     )
 
 

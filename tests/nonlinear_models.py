@@ -41,6 +41,7 @@ __all__ = [
     "CAR_PARAMETERS",
     "POT_PARAMETERS",
     "TANK_PARAMETERS",
+    "STAGE_PARAMETERS",
 ]
 
 #: Acceleration of gravity used by every sample plant, m/s²: the standard 9.80665 (CGPM 1901) rounded.
@@ -448,6 +449,100 @@ def _quarter_car_model() -> NonlinearModel:
     )
 
 
+# -- planar stage carrying a payload on flexures -----------------------------------------------
+# Newton's and Euler's laws for two rigid bodies moving in a horizontal plane: a stage floating
+# on air bearings (viscous drag, no spring to ground) driven by three linear motors whose
+# forces keep fixed directions in the room but act at points that turn with the stage, and a
+# payload hung on four flexures, each an isotropic spring–damper between matching points of
+# the stage and the payload (zero length at rest). The attachment points turn with each body
+# (rotation matrices): the only nonlinearity, and what couples the yaw of either body into the
+# forces. The payload's centre of mass sits off the middle of its flexures, so its translation
+# and yaw are coupled. A cable pulls the payload along x (the disturbance).
+STAGE_PARAMETERS = dict(
+    stage_mass=4.2, stage_inertia=0.031, payload_mass=1.3, payload_inertia=0.0065,
+    flexure_stiffness=4000.0, flexure_damping=2.5, bearing_damping=8.0, bearing_yaw_damping=0.02,
+    flexure_half_span=0.06, payload_offset=(0.02, -0.01),
+    motor_points=((0.0, 0.08), (0.0, -0.08), (0.05, 0.0)),
+    motor_directions=((1.0, 0.0), (1.0, 0.0), (0.0, 1.0)),
+)
+
+
+def _rotation(angle):
+    # written with numpy so that a complex angle (complex-step derivatives) passes through
+    c, s = np.cos(angle), np.sin(angle)
+    return np.array([[c, -s], [s, c]])
+
+
+def _turned(angle, point):
+    """∂(R(θ)·point)/∂θ = R(θ)·J·point (J a quarter turn): the velocity of a body point per unit yaw rate."""
+    return _rotation(angle) @ np.array([-point[1], point[0]])
+
+
+def _cross(a, b):
+    return a[0] * b[1] - a[1] * b[0]
+
+
+def _flexure_stage_model() -> NonlinearModel:
+    p = STAGE_PARAMETERS
+    half = p["flexure_half_span"]
+    offset = np.array(p["payload_offset"], dtype=float)
+    # flexure points relative to the stage's centre of mass at rest, and the same points seen
+    # from the payload's centre of mass
+    corners = [np.array([sx * half, sy * half]) for sx in (1.0, -1.0) for sy in (1.0, -1.0)]
+    on_payload = [corner - offset for corner in corners]
+    motor_points = [np.array(point, dtype=float) for point in p["motor_points"]]
+    motor_directions = [np.array(direction, dtype=float) for direction in p["motor_directions"]]
+
+    def dynamics(x, u, d):
+        sx, sy, sa, px, py, pa = x[0], x[2], x[4], x[6], x[8], x[10]
+        svx, svy, sw, pvx, pvy, pw = x[1], x[3], x[5], x[7], x[9], x[11]
+        stage_r, stage_v = np.array([sx, sy]), np.array([svx, svy])
+        payload_r, payload_v = np.array([px, py]), np.array([pvx, pvy])
+        stage_turn, payload_turn = _rotation(sa), _rotation(pa)
+        stage_force = -p["bearing_damping"] * stage_v
+        stage_torque = -p["bearing_yaw_damping"] * sw
+        for force, point, direction in zip(u, motor_points, motor_directions):
+            stage_force = stage_force + force * direction
+            stage_torque = stage_torque + _cross(stage_turn @ point, force * direction)
+        payload_force = np.array([d[0], 0.0 * d[0]])
+        payload_torque = 0.0 * d[0]
+        for corner, point in zip(corners, on_payload):
+            on_stage_at = stage_r + stage_turn @ corner
+            on_payload_at = payload_r + payload_turn @ point
+            stage_point_speed = stage_v + sw * _turned(sa, corner)
+            payload_point_speed = payload_v + pw * _turned(pa, point)
+            pull = (-p["flexure_stiffness"] * (on_payload_at - on_stage_at)
+                    - p["flexure_damping"] * (payload_point_speed - stage_point_speed))
+            payload_force = payload_force + pull
+            payload_torque = payload_torque + _cross(payload_turn @ point, pull)
+            stage_force = stage_force - pull
+            stage_torque = stage_torque - _cross(stage_turn @ corner, pull)
+        stage_acc = stage_force / p["stage_mass"]
+        payload_acc = payload_force / p["payload_mass"]
+        return np.array([
+            svx, stage_acc[0], svy, stage_acc[1], sw, stage_torque / p["stage_inertia"],
+            pvx, payload_acc[0], pvy, payload_acc[1], pw, payload_torque / p["payload_inertia"],
+        ])
+
+    def outputs(x, u):
+        # payload position in mm from its rest point, payload yaw in mrad
+        return np.array([1000.0 * (x[6] - offset[0]), 1000.0 * (x[8] - offset[1]), 1000.0 * x[10]])
+
+    operating = np.zeros(12)
+    operating[6], operating[8] = offset
+    return NonlinearModel(
+        stem="flexure_stage_xy",
+        dynamics=dynamics,
+        outputs=outputs,
+        operating_state=operating,
+        operating_input=_array(0.0, 0.0, 0.0),
+        disturbance_count=1,
+        state_scale=_array(1e-3, 0.01, 1e-3, 0.01, 1e-3, 0.01, 1e-3, 0.01, 1e-3, 0.01, 1e-3, 0.01),
+        input_scale=_array(10.0, 10.0, 10.0),
+        actuator_range=((-40.0, 40.0), (-40.0, 40.0), (-40.0, 40.0)),
+    )
+
+
 NONLINEAR_MODELS: dict[str, NonlinearModel] = {
     model.stem: model
     for model in (
@@ -459,5 +554,6 @@ NONLINEAR_MODELS: dict[str, NonlinearModel] = {
         _twin_pot_model(),
         _motor_arm_model(),
         _quarter_car_model(),
+        _flexure_stage_model(),
     )
 }

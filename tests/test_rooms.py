@@ -46,10 +46,10 @@ def reference_plant():
 @pytest.fixture
 def rooms(monkeypatch):
     """A fresh set of rooms for each test (the process-wide registry stays untouched)."""
-    from gainboard.app import workbench
+    from gainboard.app import room_link
 
     registry = RoomRegistry()
-    monkeypatch.setattr(workbench, "ROOMS", registry)
+    monkeypatch.setattr(room_link, "ROOMS", registry)
     return registry
 
 

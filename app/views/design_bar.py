@@ -8,40 +8,13 @@ import panel as pn
 
 from gainboard import core
 
-from ..theme import format_complex, format_gain_text
+from ..pole_list import parse_pole_list
+from ..theme import TABLE_CSS, format_complex, format_gain_text
 from .html_box import HtmlBox
-from .tables import TABLE_CSS
 
-__all__ = ["DesignBar", "parse_pole_list"]
+__all__ = ["DesignBar"]
 
 WIDTH = 350
-
-
-def parse_pole_list(text: str) -> list[complex]:
-    """Read poles such as ``-2+4j, -2-4j, -10`` (``i`` for ``j`` and a true minus sign accepted).
-
-    Raises
-    ------
-    PlacementError
-        Naming the piece that could not be read.
-
-    Examples
-    --------
-    >>> parse_pole_list("−2+4i, -2-4j, -10")
-    [(-2+4j), (-2-4j), (-10+0j)]
-    """
-    cleaned = text.replace("−", "-").replace("i", "j").replace(" ", "")
-    poles = []
-    for piece in cleaned.split(","):
-        if not piece:
-            continue
-        try:
-            poles.append(complex(piece))
-        except ValueError:
-            raise core.PlacementError(f"cannot read the pole {piece!r}; write poles like -2+4j, -2-4j, -10") from None
-    if not poles:
-        raise core.PlacementError("no target poles given; write them like -2+4j, -2-4j, -10")
-    return poles
 
 
 class DesignBar:

@@ -18,7 +18,7 @@ from gainboard import core
 from ..design_file import MAX_DESIGN_FILE_BYTES, design_to_json
 from ..export import EXPORT_FILE_SUFFIXES, export_design
 from .html_box import HtmlBox
-from .tables import TABLE_CSS
+from ..theme import TABLE_CSS
 
 __all__ = ["FilePanel", "file_stem", "EXPORT_CHOICES"]
 

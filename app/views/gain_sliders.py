@@ -1,9 +1,10 @@
 """One slider per entry of K, with typed entry and the entry's exact stable interval.
 
 Each entry k_ij shows: its name (input ← state) and units, a number box for exact
-values, a slider whose range comes from the core's ``default_entry_range`` and is
-renewed when the value nears an end, a strip drawing the stable interval (others
-fixed) across the slider's range, and a button that shows the entry's locus.
+values, a slider whose range and step come with the evaluation (the core keeps a
+range while the value fits and renews it after a release near an end), a strip
+drawing the stable interval (others fixed) across the slider's range, and a button
+that shows the entry's locus.
 """
 
 from __future__ import annotations
@@ -14,21 +15,14 @@ from html import escape
 import numpy as np
 import panel as pn
 
-from gainboard import core
-
 from ..scheduling import guarded
-from ..theme import PALETTE, format_relative
+from ..theme import PALETTE, entry_symbol, format_number
 from .html_box import HtmlBox
-from .pole_map import entry_symbol
 
-__all__ = ["GainSliders", "PromptSlider", "entry_units", "nice_step"]
+__all__ = ["GainSliders", "PromptSlider", "entry_units"]
 
 SLIDER_WIDTH = 320
 STRIP_HEIGHT = 10
-#: Renew the slider range when the value comes this close (fraction of the range) to an end.
-EDGE_FRACTION = 0.04
-#: Number of slider steps across the range.
-STEPS_PER_RANGE = 400
 
 
 class PromptSlider(pn.widgets.FloatSlider):
@@ -54,35 +48,12 @@ def entry_units(plant, row: int, col: int) -> str:
     return ""
 
 
-def nice_step(span: float) -> float:
-    """A 1-2-5 step near span / STEPS_PER_RANGE, so slider values read well.
-
-    Examples
-    --------
-    >>> nice_step(800.0)
-    2.0
-    >>> nice_step(1000.0)
-    5.0
-    >>> nice_step(0.3)
-    0.001
-    """
-    raw = span / STEPS_PER_RANGE
-    if not (math.isfinite(raw) and raw > 0):
-        return 1.0
-    exponent = math.floor(math.log10(raw))
-    base = 10.0 ** exponent
-    for factor in (1.0, 2.0, 5.0, 10.0):
-        if raw <= factor * base * (1 + 1e-9):
-            return float(round(factor * base, 12 - exponent if exponent < 12 else 0))
-    return 10.0 * base
-
-
 def _interval_text(symbol: str, intervals, scale: float = 0.0) -> str:
     if intervals is None:
         return ""
 
-    def format_number(value):
-        return format_relative(value, scale)
+    def number(value):
+        return format_number(value, scale=scale)
 
     if not intervals.entry_has_effect:
         return f"{symbol} moves no pole"
@@ -94,11 +65,11 @@ def _interval_text(symbol: str, intervals, scale: float = 0.0) -> str:
         if math.isinf(low) and math.isinf(high):
             parts.append("any value")
         elif math.isinf(low):
-            parts.append(f"{symbol} &lt; {format_number(high)}")
+            parts.append(f"{symbol} &lt; {number(high)}")
         elif math.isinf(high):
-            parts.append(f"{symbol} &gt; {format_number(low)}")
+            parts.append(f"{symbol} &gt; {number(low)}")
         else:
-            parts.append(f"{format_number(low)} &lt; {symbol} &lt; {format_number(high)}")
+            parts.append(f"{number(low)} &lt; {symbol} &lt; {number(high)}")
     return "stable for " + " or ".join(parts)
 
 
@@ -122,9 +93,9 @@ def interval_strip_svg(low: float, high: float, value: float, intervals, width: 
     x = position(value)
     shapes.append(f'<rect x="{max(x - 1.5, 0):.1f}" y="0" width="3" height="{STRIP_HEIGHT}" fill="{PALETTE["ink"]}"/>')
     label_style = f'font-size="10" fill="{PALETTE["muted"]}" font-family="sans-serif"'
-    shapes.append(f'<text x="0" y="{STRIP_HEIGHT + 10}" {label_style}>{format_relative(low, span)}</text>')
+    shapes.append(f'<text x="0" y="{STRIP_HEIGHT + 10}" {label_style}>{format_number(low, scale=span)}</text>')
     shapes.append(f'<text x="{width}" y="{STRIP_HEIGHT + 10}" text-anchor="end" {label_style}>'
-                  f'{format_relative(high, span)}</text>')
+                  f'{format_number(high, scale=span)}</text>')
     return (
         f'<svg width="{width}" height="{STRIP_HEIGHT + 12}" role="img" '
         f'aria-label="slider range and stable values of this entry">' + "".join(shapes) + "</svg>"
@@ -151,7 +122,6 @@ class _EntryControls:
         )
         self.strip = HtmlBox(css=owner.css, width=SLIDER_WIDTH + 10, margin=(0, 4, 0, 8),
                              css_classes=[f"gb-strip-{row + 1}-{col + 1}"])
-        self.range = None  # (low, high) of the slider
         self.panel = pn.Column(
             pn.Row(self.label, self.number, self.locus_button, margin=0),
             self.slider,
@@ -179,7 +149,6 @@ class _EntryControls:
             return
         self.owner.scheduler.discard(("entry", self.row, self.col))
         self.owner.state.set_entry(self.row, self.col, float(event.new))
-        self.owner.renew_range_if_near_edge(self)
 
     def _typed(self, event) -> None:
         if self.owner.syncing or event.new is None:
@@ -189,12 +158,12 @@ class _EntryControls:
             self.owner.state.show_message(f"{self.symbol} must be a finite number.", "error")
             return
         self.owner.state.set_entry(self.row, self.col, value)
-        self.owner.renew_range_if_near_edge(self)
 
     # refreshing from an evaluation
 
     def show(self, evaluation, value: float, selected: bool) -> None:
         plant = evaluation.plant
+        slider_range = evaluation.view_ranges.sliders[(self.row, self.col)]
         intervals = (evaluation.entry_intervals or {}).get((self.row, self.col))
         units = entry_units(plant, self.row, self.col)
         name = f"{escape(plant.input_names[self.row])} ← {escape(plant.state_names[self.col])}"
@@ -205,10 +174,9 @@ class _EntryControls:
         )
         if self.number.value is None or float(self.number.value) != value:
             self.number.value = value
-        low, high = self.range
+        low, high = slider_range.low, slider_range.high
         if self.slider.start != low or self.slider.end != high:
-            step = nice_step(high - low)
-            self.slider.param.update(start=low, end=high, step=step)
+            self.slider.param.update(start=low, end=high, step=slider_range.step)
         if float(self.slider.value) != value:
             self.slider.value = min(max(value, low), high)
         self.locus_button.color = "primary" if selected else "light"
@@ -247,7 +215,6 @@ class GainSliders:
         self.syncing = False
         self._controls: dict[tuple[int, int], _EntryControls] = {}
         self._shape = None
-        self._plant = None
         self.panel = pn.Column(margin=0, sizing_mode="stretch_width")
 
     def _build(self, shape) -> None:
@@ -256,39 +223,14 @@ class GainSliders:
         self.panel.objects = [c.panel for c in self._controls.values()]
         self._shape = shape
 
-    def _renew_range(self, controls: _EntryControls, evaluation) -> None:
-        low, high = core.default_entry_range(evaluation.plant, evaluation.gain, controls.row, controls.col)
-        step = nice_step(high - low)
-        controls.range = (math.floor(low / step) * step, math.ceil(high / step) * step)
-
-    def renew_range_if_near_edge(self, controls: _EntryControls) -> None:
-        """After a release or a typed value: re-centre the range when the value sits near an end."""
-        evaluation = self.state.evaluation
-        value = float(evaluation.gain[controls.row, controls.col])
-        low, high = controls.range
-        margin = EDGE_FRACTION * (high - low)
-        if low + margin < value < high - margin:
-            return
-        self._renew_range(controls, evaluation)
-        self.syncing = True
-        try:
-            controls.show(evaluation, value, self.state.selected_entry == (controls.row, controls.col))
-        finally:
-            self.syncing = False
-
     def refresh(self, evaluation) -> None:
         """Show K, the ranges and the stable intervals of ``evaluation``."""
         gain = np.asarray(evaluation.gain, dtype=float)
-        plant_changed = evaluation.plant is not self._plant
         if gain.shape != self._shape:
             self._build(gain.shape)
         self.syncing = True
         try:
             for (i, j), controls in self._controls.items():
-                value = float(gain[i, j])
-                if plant_changed or controls.range is None or not (controls.range[0] <= value <= controls.range[1]):
-                    self._renew_range(controls, evaluation)
-                controls.show(evaluation, value, self.state.selected_entry == (i, j))
+                controls.show(evaluation, float(gain[i, j]), evaluation.selected_entry == (i, j))
         finally:
             self.syncing = False
-        self._plant = evaluation.plant

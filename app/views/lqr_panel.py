@@ -12,7 +12,7 @@ from gainboard import core
 
 from ..theme import format_complex, format_gain_text, format_number
 from .html_box import HtmlBox
-from .tables import TABLE_CSS
+from ..theme import TABLE_CSS
 
 __all__ = ["LqrPanel", "parse_weight_list"]
 

@@ -4,11 +4,12 @@ from __future__ import annotations
 
 from html import escape
 
+import numpy as np
 import panel as pn
 
-from ..state import bundled_plant_catalogue
+from ..plant_catalogue import bundled_plant_catalogue
+from ..theme import TABLE_CSS, format_complex, format_number
 from .html_box import HtmlBox
-from .tables import TABLE_CSS, structure_summary_html
 
 __all__ = ["PlantPanel"]
 
@@ -105,3 +106,28 @@ class PlantPanel:
         self.description.object = f'<div class="gb-note" style="white-space: pre-wrap;">{text}</div>'
         if plant.is_sampled:
             self.sample_time.value = plant.sample_time
+
+
+def structure_summary_html(evaluation) -> str:
+    """Which open-loop poles a gain can move, in words."""
+    structure = evaluation.structure
+    plant = evaluation.plant
+    fixed = [format_complex(p, 4) for p in np.asarray(structure.uncontrollable_poles, complex)]
+    lines = [
+        f"{plant.state_count} states, {plant.input_count} input(s), {plant.output_count} output(s); "
+        + (f"sampled every {format_number(plant.sample_time)} s (z-plane)." if plant.is_sampled
+           else "continuous time (s-plane)."),
+    ]
+    if structure.controllable:
+        lines.append('<span class="gb-pass">Every pole can be moved</span> by some gain (controllable).')
+    else:
+        lines.append(
+            f'<span class="gb-fail">{len(fixed)} pole(s) cannot be moved</span> by any gain: '
+            f"{', '.join(fixed)} (uncontrollable; framed on the pole map)."
+        )
+    if structure.nearly_uncontrollable:
+        lines.append(
+            "Some poles are barely reachable from the inputs (controllability margin "
+            f"{format_number(structure.controllability_margin, 3)}): moving them needs very large gains."
+        )
+    return '<div class="gb-note">' + "<br>".join(lines) + "</div>"

@@ -36,14 +36,12 @@ from bokeh.models import (
 )
 from bokeh.plotting import figure
 
-from gainboard import core
-
 from ..scheduling import guarded
 from ..theme import LOCUS_RAMP, MARKERS, PALETTE, entry_symbol, format_complex, format_number
 from .data_sources import update_source
 from .html_box import HtmlBox
 
-__all__ = ["PoleMap", "entry_symbol"]
+__all__ = ["PoleMap"]
 
 FRAME_WIDTH = 395
 FRAME_HEIGHT = 375
@@ -53,8 +51,8 @@ PICK_RADIUS_PX = 16
 SNAP_PX = 5
 #: Poles closer than this fraction of the view to its frame trigger a new fit.
 EDGE_FRACTION = 0.05
-#: Length of a sensitivity arrow as a fraction of the view height.
-ARROW_FRACTION = 0.09
+#: A fitted frame this much smaller than the view (both ways) means the content shrank: fit again.
+SHRUNK_FRACTION = 0.3
 
 
 def _xy(poles) -> tuple[list[float], list[float]]:
@@ -77,7 +75,7 @@ class PoleMap:
         self.scheduler = scheduler
         self._setting_poles = False
         self._drag = None
-        self._view = None  # (x0, x1, y0, y1)
+        self._view = None  # (x0, x1, y0, y1) as last fitted
         self._plant = None
         self._shown_poles: list[complex] = []
 
@@ -195,14 +193,19 @@ class PoleMap:
         self._refresh_region(evaluation)
         self._refresh_locus(evaluation)
         self._refresh_arrows(evaluation)
-        self.refresh_comparisons()
+        self._refresh_ghosts()
         if self.state.dragging:
             self._preview_partner()
         else:
             self._set_closed_poles(evaluation)
         self._refresh_legend(evaluation)
 
-    def refresh_comparisons(self) -> None:
+    def refresh_comparisons(self, evaluation) -> None:
+        """The pinned design and the LQR design changed: their ghost poles and the legend."""
+        self._refresh_ghosts()
+        self._refresh_legend(evaluation)
+
+    def _refresh_ghosts(self) -> None:
         """Ghost poles of the pinned design and the LQR design."""
         pinned = self.state.pinned
         x, y = _xy(pinned.closed_loop.poles) if pinned is not None and pinned.plant is self._plant else ([], [])
@@ -264,17 +267,8 @@ class PoleMap:
                 self._setting_poles = False
 
     def _refresh_region(self, evaluation) -> None:
-        region = evaluation.pole_region
-        if region is None:
-            update_source(self.region_source, {"xs": [], "ys": []})
-            return
-        x0, x1, y0, y1 = self._view
-        extent = 2.0 * max(abs(x0), abs(x1), abs(y0), abs(y1), 1e-9)
-        outlines = core.region_boundary(region, extent)
-        update_source(self.region_source, {
-            "xs": [np.asarray(x, dtype=float) for x, _ in outlines],
-            "ys": [np.asarray(y, dtype=float) for _, y in outlines],
-        })
+        outlines = evaluation.view_ranges.region_outline
+        update_source(self.region_source, {"xs": [x for x, _ in outlines], "ys": [y for _, y in outlines]})
 
     def _refresh_locus(self, evaluation) -> None:
         locus = evaluation.selected_locus
@@ -302,25 +296,9 @@ class PoleMap:
         })
 
     def _refresh_arrows(self, evaluation) -> None:
-        sensitivity = evaluation.sensitivity
-        empty = {"x_start": [], "y_start": [], "x_end": [], "y_end": []}
-        if sensitivity is None:
-            update_source(self.arrow_source, empty)
-            return
-        _, _, y0, y1 = self._view
-        length = ARROW_FRACTION * (y1 - y0)
-        data = {key: [] for key in empty}
-        for pole, slope in zip(np.asarray(sensitivity.poles, complex), np.asarray(sensitivity.derivatives, complex)):
-            size = abs(slope)
-            if not np.isfinite(size) or size == 0.0:
-                continue
-            # Arrows show direction only (a fixed on-screen length): their size would mix units.
-            tip = pole + slope / size * length
-            data["x_start"].append(pole.real)
-            data["y_start"].append(pole.imag)
-            data["x_end"].append(tip.real)
-            data["y_end"].append(tip.imag)
-        update_source(self.arrow_source, data)
+        starts, tips = evaluation.view_ranges.arrows
+        update_source(self.arrow_source, {"x_start": starts.real.tolist(), "y_start": starts.imag.tolist(),
+                                          "x_end": tips.real.tolist(), "y_end": tips.imag.tolist()})
 
     def _refresh_legend(self, evaluation) -> None:
         locus = evaluation.selected_locus
@@ -349,35 +327,10 @@ class PoleMap:
 
     # -- view extent --------------------------------------------------------------------------
 
-    def _points_of_interest(self, evaluation) -> np.ndarray:
-        parts = [np.asarray(evaluation.open_loop.poles, complex), np.asarray(evaluation.closed_loop.poles, complex)]
-        if self.state.pinned is not None and self.state.pinned.plant is evaluation.plant:
-            parts.append(np.asarray(self.state.pinned.closed_loop.poles, complex))
-        if self.state.lqr_poles is not None:
-            parts.append(np.asarray(self.state.lqr_poles, complex))
-        points = np.concatenate(parts)
-        return points[np.isfinite(points)]
-
     def _fit(self, evaluation) -> None:
-        """Frame the poles (and the stability boundary) with equal scales on both axes."""
-        points = self._points_of_interest(evaluation)
-        if evaluation.plant.is_sampled:
-            points = np.concatenate([points, [1.05, -1.05, 1.05j, -1.05j]])
-        else:
-            points = np.concatenate([points, [0.0]])
-        left, right = float(points.real.min()), float(points.real.max())
-        half_height = float(np.abs(points.imag).max())
-        half_width = (right - left) / 2.0
-        scale = max(half_width, half_height, 1e-3 * max(abs(left), abs(right)), 1e-6)
-        half_width = max(half_width, 0.05 * scale) * 1.3
-        half_height = max(half_height, 0.05 * scale) * 1.3
-        aspect = FRAME_WIDTH / FRAME_HEIGHT
-        if half_width / half_height < aspect:
-            half_width = half_height * aspect
-        else:
-            half_height = half_width / aspect
-        centre = (left + right) / 2.0
-        self._set_view(centre - half_width, centre + half_width, -half_height, half_height)
+        """Show the frame the core fitted to the poles (equal scales on both axes)."""
+        frame = evaluation.view_ranges.pole_frame
+        self._set_view(frame.x_start, frame.x_end, frame.y_start, frame.y_end)
 
     def _set_view(self, x0, x1, y0, y1) -> None:
         self._view = (x0, x1, y0, y1)
@@ -404,10 +357,9 @@ class PoleMap:
             return True
         if (x0, x1, y0, y1) != self._view:
             return False  # the user zoomed or panned: leave the view alone
-        points = self._points_of_interest(evaluation)
-        width = max(float(np.ptp(points.real)), 0.0) if points.size else 0.0
-        height = 2.0 * float(np.abs(points.imag).max()) if points.size else 0.0
-        return width < 0.25 * (x1 - x0) and height < 0.25 * (y1 - y0)
+        frame = evaluation.view_ranges.pole_frame
+        return (frame.x_end - frame.x_start < SHRUNK_FRACTION * (x1 - x0)
+                and frame.y_end - frame.y_start < SHRUNK_FRACTION * (y1 - y0))
 
     def _current_view(self):
         xr, yr = self.figure.x_range, self.figure.y_range

@@ -18,7 +18,6 @@ from bokeh.plotting import figure
 from ..theme import PALETTE, format_number, trace_colour
 from .data_sources import update_source
 from .html_box import HtmlBox
-from .plot_ranges import steady_time_end, steady_value_range
 
 __all__ = ["ResponsePlots", "RESPONSE_KINDS"]
 
@@ -38,6 +37,12 @@ def _response_of(evaluation, kind: str):
     if evaluation is None or evaluation.responses is None:
         return None
     return getattr(evaluation.responses, kind)
+
+
+def _axes_of(evaluation, kind: str):
+    if evaluation is None or evaluation.view_ranges is None:
+        return None
+    return evaluation.view_ranges.responses.get(kind)
 
 
 def _finite_list(values) -> np.ndarray:
@@ -122,13 +127,13 @@ class ResponsePlots:
         pinned = self.state.pinned if self.state.pinned is not None and self.state.pinned.plant is plant else None
         ghost = _response_of(pinned, kind)
         outputs, inputs, limits = _empty_lines(), _empty_lines(), {"xs": [], "ys": [], "colour": []}
-        end_time = 1.0
-        if response is not None:
-            time = _finite_list(response.time)
-            end_time = max(float(time[-1]) if time.size else 1.0, 1e-9)
-        # Ranges move in whole steps only (see plot_ranges) and follow the traces, not the
-        # limit lines: a limit far away would flatten a small effort into a line.
-        end_time = steady_time_end(end_time)
+        # The ranges come with the evaluation (whole steps, kept or growing during a drag: see
+        # gainboard.core.view_ranges) and follow the traces, not the limit lines: a limit far
+        # away would flatten a small effort into a line. A pinned design's traces are shown too.
+        axes = _axes_of(evaluation, kind)
+        if axes is not None:
+            axes = axes.joined(_axes_of(pinned, kind))
+        end_time = axes.time_end if axes is not None else 1.0
         if response is not None:
             self._add_traces(outputs, response.time, response.outputs, response.saturated_outputs, ghost, "outputs")
             self._add_traces(inputs, response.time, response.inputs, response.saturated_inputs, ghost, "inputs")
@@ -139,22 +144,21 @@ class ResponsePlots:
                             limits["xs"].append([0.0, end_time])
                             limits["ys"].append([level, level])
                             limits["colour"].append(trace_colour(j))
-        # While a design is dragged the ranges only grow: a range change re-measures the axis
-        # labels and lays the plot out again in the browser (about 20 ms), and curves that
-        # shrink back under a fixed axis are easier to follow. The release fits them again.
-        growing = self.state.evaluating_live
-        end_time = max(end_time, self.output_figure.x_range.end) if growing else end_time
         _set_range(self.output_figure.x_range, 0.0, end_time)
-        for fig, lines in ((self.output_figure, outputs), (self.input_figure, inputs)):
-            low, high = steady_value_range(lines["ys"])
-            if growing:
-                low, high = min(low, fig.y_range.start), max(high, fig.y_range.end)
-            _set_range(fig.y_range, low, high)
+        if axes is not None:
+            _set_range(self.output_figure.y_range, *axes.outputs)
+            _set_range(self.input_figure.y_range, *axes.inputs)
         self.output_source.data = outputs
         self.input_source.data = inputs
         update_source(self.limit_source, limits)
         if texts:
             self._refresh_text(evaluation, response, ghost is not None)
+
+    def refresh_texts(self, evaluation) -> None:
+        """Only the legend, description and metrics of the chosen response."""
+        kind = self.kind_name
+        pinned = self.state.pinned if self.state.pinned is not None and self.state.pinned.plant is evaluation.plant else None
+        self._refresh_text(evaluation, _response_of(evaluation, kind), _response_of(pinned, kind) is not None)
 
     def _add_traces(self, lines, time, linear, saturated, ghost, which: str) -> None:
         time = _finite_list(time)

@@ -16,14 +16,11 @@ import panel as pn
 from bokeh.models import ColumnDataSource
 from bokeh.plotting import figure
 
-from gainboard import core
-
-from ..theme import format_number, format_relative, trace_colour
+from ..robustness_state import MAX_SAMPLES, SAMPLING_CAUTION
+from ..theme import TABLE_CSS, entry_symbol, format_number, trace_colour
 from .data_sources import update_source
 from .gain_sliders import SLIDER_WIDTH, interval_strip_svg
 from .html_box import HtmlBox
-from .pole_map import entry_symbol
-from .tables import TABLE_CSS
 
 __all__ = ["RobustnessPanel", "POINT_MARKERS"]
 
@@ -67,14 +64,10 @@ class RobustnessPanel:
     robust : RobustnessState
     pole_figure : bokeh figure
         The workbench's pole map, which gets the operating-point, cloud and moved-parameter layers.
-    slider_range : callable
-        ``slider_range(row, col) -> (low, high)``, the range the gain slider of that entry shows,
-        so that the strips here line up with the sliders.
     """
 
-    def __init__(self, robust, pole_figure, slider_range):
+    def __init__(self, robust, pole_figure):
         self.robust = robust
-        self.slider_range = slider_range
         self.cloud_source = ColumnDataSource({"x": [], "y": []}, name="sampled_cloud")
         self.points_source = ColumnDataSource({"x": [], "y": [], "marker": [], "name": []}, name="operating_points")
         self.moved_source = ColumnDataSource({"x": [], "y": []}, name="moved_parameter_poles")
@@ -104,7 +97,7 @@ class RobustnessPanel:
         self.parameter_slider = pn.widgets.FloatSlider(label="value", start=0.0, end=1.0, value=0.0, step=0.01,
                                                        width=230, margin=(2, 5), css_classes=["gb-robust-value"])
         self.moved_text = HtmlBox(css=CSS, width=WIDTH, name="moved_parameter_text")
-        self.samples = pn.widgets.IntInput(label="samples", value=robust.samples, start=1, end=core.MAX_SAMPLES,
+        self.samples = pn.widgets.IntInput(label="samples", value=robust.samples, start=1, end=MAX_SAMPLES,
                                            width=110, margin=(2, 5), css_classes=["gb-robust-samples"])
         self.seed = pn.widgets.IntInput(label="seed", value=robust.seed, start=0, width=90, margin=(2, 5),
                                         css_classes=["gb-robust-seed"])
@@ -269,11 +262,11 @@ class RobustnessPanel:
         gain = self.robust.design.gain
         parts = []
         for (row, col), found in sorted(common.items()):
-            low, high = self.slider_range(row, col)
+            low, high = self.robust.strip_range(row, col)  # the slider's own range
             value = float(gain[row, col])
             inside = any(a < value < b for a, b in found.intervals)
             span = high - low  # rounding noise far below the slider's span reads 0, as under the sliders
-            text = " or ".join(f"{format_relative(a, span)} &lt; {entry_symbol(row, col)} &lt; {format_relative(b, span)}"
+            text = " or ".join(f"{format_number(a, scale=span)} &lt; {entry_symbol(row, col)} &lt; {format_number(b, scale=span)}"
                                if math.isfinite(a) or math.isfinite(b) else "any value"
                                for a, b in found.intervals) or "no value"
             limits = sorted(set(found.limiting_model.values()))
@@ -321,7 +314,7 @@ class RobustnessPanel:
     def _refresh_result(self) -> None:
         robust = self.robust
         result = robust.result
-        caution = f"<div class='gb-caution-small'>{escape(core.SAMPLING_CAUTION)}</div>"
+        caution = f"<div class='gb-caution-small'>{escape(SAMPLING_CAUTION)}</div>"
         note = f"<div class='gb-small'>{escape(robust.message)}</div>" if robust.message else ""
         if result is None:
             update_source(self.cloud_source, {"x": [], "y": []})

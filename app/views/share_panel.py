@@ -14,7 +14,7 @@ from html import escape
 import panel as pn
 
 from .html_box import HtmlBox
-from .tables import TABLE_CSS
+from ..theme import TABLE_CSS
 
 __all__ = ["SharePanel"]
 
@@ -28,13 +28,18 @@ class SharePanel:
 
     Parameters
     ----------
-    workbench : Workbench
-        The session; the panel calls its ``join_room``, ``leave_room``,
-        ``set_nickname`` and ``make_snapshot_link``.
+    on_join : callable
+        ``on_join(room_name)`` joins or starts a live room.
+    on_leave : callable
+        Leaves the room.
+    on_rename : callable
+        ``on_rename(name)`` changes the name shown to others.
+    make_snapshot_link : callable
+        Returns a link reopening the design as it is now ("" when it cannot be made).
     """
 
-    def __init__(self, workbench):
-        self.workbench = workbench
+    def __init__(self, *, on_join, on_leave, on_rename, make_snapshot_link):
+        self._make_snapshot_link = make_snapshot_link
         self.nickname = pn.widgets.TextInput(label="Your name (shown to others in a live room)", width=WIDTH - 10,
                                              margin=(2, 5), max_length=40, css_classes=["gb-nickname"])
         self.room_name = pn.widgets.TextInput(label="Live room name", placeholder="for example lab-review",
@@ -56,9 +61,9 @@ class SharePanel:
         self.copy_snapshot = pn.widgets.Button(label="Copy snapshot link", width=150, margin=(2, 5))
         self.copy_snapshot.js_on_click(args={"source": self.snapshot_link}, code=_COPY_CODE)
 
-        self.nickname.param.watch(lambda event: workbench.set_nickname(event.new), "value")
-        self.join_button.on_click(lambda event: workbench.join_room(self.room_name.value))
-        self.leave_button.on_click(lambda event: workbench.leave_room())
+        self.nickname.param.watch(lambda event: on_rename(event.new), "value")
+        self.join_button.on_click(lambda event: on_join(self.room_name.value))
+        self.leave_button.on_click(lambda event: on_leave())
         self.snapshot_button.on_click(lambda event: self._make_snapshot())
 
         heading = lambda text: pn.pane.HTML(f'<div class="gb-heading">{text}</div>',  # noqa: E731
@@ -87,7 +92,7 @@ class SharePanel:
         self.show_room(None, [], "")
 
     def _make_snapshot(self) -> None:
-        link = self.workbench.make_snapshot_link()
+        link = self._make_snapshot_link()
         if link:
             self.snapshot_link.value = link
 

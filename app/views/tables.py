@@ -4,29 +4,13 @@ from __future__ import annotations
 
 from html import escape
 
-import numpy as np
 import panel as pn
 
-from ..theme import PALETTE, format_complex, format_number
+from ..spec_rows import spec_check_rows
+from ..theme import TABLE_CSS, format_complex, format_number
 from .html_box import HtmlBox
 
-__all__ = ["PoleTable", "ChecksTable", "structure_summary_html", "TABLE_CSS"]
-
-TABLE_CSS = f"""
-table.gb-table {{ border-collapse: collapse; font-size: 12.5px; width: 100%; }}
-table.gb-table th {{ text-align: left; font-weight: 600; color: {PALETTE['muted']};
-  border-bottom: 1px solid {PALETTE['rule']}; padding: 3px 6px; }}
-table.gb-table td {{ padding: 3px 6px; border-bottom: 1px solid #ece9e1; }}
-table.gb-table td.num {{ text-align: right; font-family: ui-monospace, monospace; white-space: nowrap; }}
-.gb-pass {{ color: {PALETTE['pass']}; font-weight: 700; }}
-.gb-fail {{ color: {PALETTE['fail']}; font-weight: 700; }}
-.gb-unknown {{ color: {PALETTE['muted']}; font-style: italic; }}
-.gb-fixed {{ color: {PALETTE['fixed_frame']}; font-style: italic; }}
-.gb-heading {{ font-size: 12px; font-weight: 700; text-transform: uppercase; letter-spacing: 0.06em;
-  color: {PALETTE['muted']}; margin: 8px 0 3px 0; }}
-.gb-note {{ font-size: 12px; color: {PALETTE['ink']}; line-height: 1.45; }}
-.gb-small {{ font-size: 11.5px; color: {PALETTE['muted']}; }}
-"""
+__all__ = ["PoleTable", "ChecksTable"]
 
 WIDTH = 470
 
@@ -94,12 +78,6 @@ class PoleTable:
         self.pane.object = "".join(html)
 
 
-def _check_cell(passed) -> str:
-    if passed is None:
-        return '<span class="gb-unknown">not evaluated</span>'
-    return '<span class="gb-pass">pass</span>' if passed else '<span class="gb-fail">fail</span>'
-
-
 class ChecksTable:
     """Spec checks (required, achieved, pass/fail) and the loop margins."""
 
@@ -117,17 +95,9 @@ class ChecksTable:
             verdict = ('<span class="gb-pass">every spec met</span>' if report.all_passed
                        else '<span class="gb-fail">some specs not met</span>')
             html.append(f'<div class="gb-note">{verdict}</div>')
-            rows = []
-            for check in report.checks:
-                subject = f" ({escape(check.subject)})" if check.subject else ""
-                rows.append(
-                    f'<tr title="{escape(check.detail)}"><td>{escape(check.description)}{subject}</td>'
-                    f'<td class="num">{format_number(check.required)}</td>'
-                    f'<td class="num">{format_number(check.achieved)}</td>'
-                    f"<td>{_check_cell(check.passed)}</td></tr>"
-                )
+            rows = spec_check_rows(report, prefix="gb-")
             html.append('<table class="gb-table gb-specs"><tr><th>spec</th><th>required</th><th>achieved</th>'
-                        "<th>result</th></tr>" + "".join(rows) + "</table>")
+                        "<th>result</th></tr>" + rows + "</table>")
         html.append('<div class="gb-heading">margins (loop broken at the plant input)</div>')
         html.append(_margins_html(evaluation.margins))
         self.pane.object = "".join(html)
@@ -155,28 +125,3 @@ def _margins_html(margins) -> str:
     scope = ("every input at once (disk margin); gain and phase margins one loop at a time"
              if margins.input_count > 1 else "single input")
     return f'<table class="gb-table gb-margins">{body}</table><div class="gb-small">{scope}</div>{note}'
-
-
-def structure_summary_html(evaluation) -> str:
-    """Which open-loop poles a gain can move, in words."""
-    structure = evaluation.structure
-    plant = evaluation.plant
-    fixed = [format_complex(p, 4) for p in np.asarray(structure.uncontrollable_poles, complex)]
-    lines = [
-        f"{plant.state_count} states, {plant.input_count} input(s), {plant.output_count} output(s); "
-        + (f"sampled every {format_number(plant.sample_time)} s (z-plane)." if plant.is_sampled
-           else "continuous time (s-plane)."),
-    ]
-    if structure.controllable:
-        lines.append('<span class="gb-pass">Every pole can be moved</span> by some gain (controllable).')
-    else:
-        lines.append(
-            f'<span class="gb-fail">{len(fixed)} pole(s) cannot be moved</span> by any gain: '
-            f"{', '.join(fixed)} (uncontrollable; framed on the pole map)."
-        )
-    if structure.nearly_uncontrollable:
-        lines.append(
-            "Some poles are barely reachable from the inputs (controllability margin "
-            f"{format_number(structure.controllability_margin, 3)}): moving them needs very large gains."
-        )
-    return '<div class="gb-note">' + "<br>".join(lines) + "</div>"

@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import sys
 
+from gainboard.app import room_link as room_link_module
 from gainboard.app import workbench as workbench_module
 from gainboard.app.cli import main
 from gainboard.app.views.responses import ResponsePlots
@@ -21,13 +22,13 @@ FAULTY_NAME = "faulty"
 
 _original_refresh = ResponsePlots.refresh
 _original_init = workbench_module.Workbench.__init__
-_original_room_change = workbench_module.Workbench._on_room_change
+_original_room_change = room_link_module.RoomLink._on_room_change
 
 
-def _refresh(self, evaluation):
+def _refresh(self, evaluation, **options):
     if getattr(self.state, "deliberately_faulty", False):
         raise RuntimeError("deliberate failure in the response plots of the faulty session")
-    return _original_refresh(self, evaluation)
+    return _original_refresh(self, evaluation, **options)
 
 
 def _init(self, state, **options):
@@ -43,7 +44,7 @@ def _on_room_change(self, change):
 
 ResponsePlots.refresh = _refresh
 workbench_module.Workbench.__init__ = _init
-workbench_module.Workbench._on_room_change = _on_room_change
+room_link_module.RoomLink._on_room_change = _on_room_change
 
 if __name__ == "__main__":
     sys.exit(main())

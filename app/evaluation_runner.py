@@ -1,0 +1,76 @@
+"""Where a design's evaluations run: at once in the caller (tests, scripts) or off the event loop (served).
+
+A :class:`DesignState` hands each evaluation it needs to a runner as an
+:class:`EvaluationRequest` with a function to deliver the result to. The inline
+runner computes it at once, so a state used from Python or a test is synchronous.
+The served workbench uses a pooled runner (see :mod:`gainboard.app.evaluation_pool`):
+the computation runs in a bounded executor and the result is delivered on the
+session's own event loop, newest request first, stale ones dropped.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Callable
+
+import numpy as np
+
+from gainboard import core
+
+from .refresh_policy import Detail
+
+__all__ = ["EvaluationRequest", "Delivery", "InlineRunner", "evaluate_request"]
+
+
+@dataclass(frozen=True, eq=False)
+class EvaluationRequest:
+    """One evaluation a session asks for.
+
+    Attributes
+    ----------
+    sequence : int
+        Counts the session's requests; a result is shown only if no newer one has been shown.
+    plant : gainboard.core.Plant
+    gain : numpy.ndarray, shape (m, n)
+    options : gainboard.core.EvaluationOptions
+    detail : Detail
+        The level of detail the options were made for (see :mod:`gainboard.app.refresh_policy`).
+    inputs : dict
+        The state's inputs this evaluation describes (restored if a newer one fails).
+    refine : gainboard.core.DesignEvaluation or None
+        When set, the request only adds the stable intervals of every entry to this evaluation.
+    """
+
+    sequence: int
+    plant: core.Plant
+    gain: np.ndarray
+    options: core.EvaluationOptions
+    detail: Detail
+    inputs: dict
+    refine: object | None = None
+
+
+#: ``deliver(request, evaluation, error)``: exactly one of evaluation and error is None.
+Delivery = Callable[[EvaluationRequest, object, BaseException], None]
+
+
+def evaluate_request(request: EvaluationRequest):
+    """The computation itself (the same in every runner): one call of the core."""
+    if request.refine is not None:
+        return core.with_all_entry_intervals(request.refine)
+    return core.evaluate_design(request.plant, request.gain, request.options)
+
+
+class InlineRunner:
+    """Evaluates at once, in the caller's thread (a state used from Python, the tests)."""
+
+    def submit(self, request: EvaluationRequest, deliver: Delivery) -> None:
+        try:
+            evaluation = evaluate_request(request)
+        except Exception as error:  # delivered: the state decides what the user sees
+            deliver(request, None, error)
+            return
+        deliver(request, evaluation, None)
+
+    def close(self) -> None:
+        """Nothing to release."""
