@@ -41,6 +41,17 @@ values = { mass = 4.0, spring = 9.0 }
 """
 
 
+def test_importing_the_core_loads_no_distributed_engine_or_progress_bar():
+    import subprocess
+    import sys
+
+    # Dask is imported only where a distributed run is set up, tqdm only by the command line
+    code = ("import sys, gainboard.core; "
+            "print(sorted(m for m in ('dask', 'distributed', 'tqdm', 'panel') if m in sys.modules))")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout
+    assert out.strip() == "[]"
+
+
 # -- the safe evaluator ---------------------------------------------------------------------------
 
 

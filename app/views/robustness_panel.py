@@ -51,9 +51,10 @@ def _verdict(passed) -> str:
     return '<span class="gb-pass">✓</span>' if passed else '<span class="gb-fail">✗</span>'
 
 
-def _interval(estimate) -> str:
+def _fraction_row(name: str, estimate) -> str:
     low, high = estimate.interval
-    return f"{estimate.fraction:.4f} <span class='gb-small'>[{low:.4f}, {high:.4f}]</span>"
+    return (f"<tr><td>{escape(name)}</td><td class='num'>{estimate.fraction:.4f}</td>"
+            f"<td class='num'>[{low:.4f}, {high:.4f}]</td></tr>")
 
 
 class RobustnessPanel:
@@ -324,22 +325,24 @@ class RobustnessPanel:
         update_source(self.cloud_source, {"x": poles.real.astype(np.float32), "y": poles.imag.astype(np.float32)})
         stale = "" if robust.result_is_current else (
             "<div class='gb-fail'>K, the plant or the specs changed since this sampling: sample again.</div>")
-        rows = [f"<tr><td>stable</td><td class='num'>{_interval(result.stable)}</td></tr>"]
-        rows += [f"<tr><td>{escape(name)}</td><td class='num'>{_interval(e)}</td></tr>"
-                 for name, e in result.spec_pass.items()]
-        rows += [f"<tr><td>{escape(name)}</td><td class='gb-small'>{escape(reason)}</td></tr>"
+        varying = {p.name for p in robust.family.varying_parameters}  # the fixed ones say nothing here
+        rows = [_fraction_row("stable", result.stable)]
+        rows += [_fraction_row(name, e) for name, e in result.spec_pass.items()]
+        rows += [f"<tr><td>{escape(name)}</td><td colspan='2' class='gb-small'>{escape(reason)}</td></tr>"
                  for name, reason in result.specs_not_sampled.items()]
         worst = "".join(
-            f"<tr><td>worst {escape(figure)}</td><td class='num'>{format_number(sample.value, 4)} "
-            f"<span class='gb-small'>sample {sample.index}: "
-            + escape(", ".join(f"{k} = {format_number(v, 4)}" for k, v in sample.parameters.items()))
-            + "</span></td></tr>" for figure, sample in result.worst.items())
+            f"<tr><td>{escape(figure)}</td><td class='num'>{format_number(sample.value, 4)}</td>"
+            f"<td class='gb-small'>sample {sample.index}: "
+            + escape(", ".join(f"{k} = {format_number(v, 4)}" for k, v in sample.parameters.items() if k in varying))
+            + "</td></tr>" for figure, sample in result.worst.items())
         failed = (f"<div class='gb-small'>{result.failed_samples} samples could not be evaluated (counted as not "
                   "stable).</div>") if result.failed_samples else ""
         self.result_box.object = (
             stale + note
-            + f"<div class='gb-small'>{result.samples} samples, seed {result.seed}; fractions with their "
-              f"{result.stable.confidence:.0%} Wilson interval. The cloud on the pole map shows "
+            + f"<div class='gb-small'>{result.samples} samples, seed {result.seed}. The cloud on the pole map shows "
               f"{min(result.samples, len(result.poles))} sampled models.</div>"
-            + "<table class='gb-table'><tr><th>figure</th><th>fraction</th></tr>" + "".join(rows) + worst
+            + f"<table class='gb-table'><tr><th>share of samples</th><th>fraction</th>"
+              f"<th>{result.stable.confidence:.0%} Wilson interval</th></tr>" + "".join(rows) + "</table>"
+            + "<table class='gb-table'><tr><th>worst sample of</th><th>value</th><th>parameters</th></tr>"
+            + worst
             + "</table>" + failed + caution)

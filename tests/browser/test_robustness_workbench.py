@@ -70,7 +70,9 @@ def test_operating_points_and_a_sampled_cloud_of_ten_thousand_models(workbench):
     expected = core.run_monte_carlo(plan)
     assert f"{expected.stable.fraction:.4f}" in shown
     assert f"{expected.spec_pass['all'].fraction:.4f}" in shown
-    assert "never a proof of robustness" in page.locator(".gb-caution-small").first.inner_text()
+    caution = page.locator(".gb-caution-small").first
+    assert "never a proof of robustness" in caution.inner_text()
+    caution.scroll_into_view_if_needed()
     workbench.screenshot("robust-01-sampled-cloud")
     # zoom the pole map onto the poles to look at the cloud (Bokeh's own ranges, as the wheel zoom sets them)
     page.evaluate("""() => { const f = Bokeh.documents[0].get_model_by_name('pole_map');
