@@ -43,6 +43,8 @@ class RobustnessState(param.Parameterized):
     common = param.Parameter(default=None, constant=True,
                              doc="Gain entry → CommonEntryInterval: values stable for every operating point.")
     envelope = param.Parameter(default=None, constant=True, doc="ResponseEnvelope of the reference step.")
+    spec_over_points = param.Parameter(default=(), constant=True,
+                                       doc="Each spec's worst case and pass count over the operating points.")
     moved_parameter = param.String(default="", doc="The parameter moved in the parameter panel.")
     moved_value = param.Number(default=0.0, doc="Its value.")
     moved = param.Parameter(default=None, constant=True,
@@ -73,7 +75,8 @@ class RobustnessState(param.Parameterized):
         self._thread: threading.Thread | None = None
         self._family_source = None
         self._sampled_for = None
-        design.param.watch(self._on_design, ["evaluation"])
+        # after the session's own views (precedence 0), so they have redrawn from the evaluation first
+        design.param.watch(self._on_design, ["evaluation"], precedence=1)
         self.refresh()
 
     # -- following the design --------------------------------------------------------------------
@@ -143,27 +146,29 @@ class RobustnessState(param.Parameterized):
 
     @staticmethod
     def _judge(family, gain, specs):
-        """(report, common, envelope, message) of K on the family: the core's calls, nothing else."""
+        """(report, common, envelope, spec_over_points, message) of K on the family: the core's calls only."""
         if family is None:
-            return None, None, None, ""
+            return None, None, None, (), ""
         try:
             report = core.evaluate_operating_points(family, gain, specs=specs)
             common = core.common_entry_intervals(family, gain)
             envelope = core.response_envelope(report, "step") or core.response_envelope(report, "initial")
-            return report, common, envelope, ""
+            return report, common, envelope, core.spec_checks_over_points(report), ""
         except core.GainboardError as error:
-            return None, None, None, f"Operating points not evaluated: {error}"
+            return None, None, None, (), f"Operating points not evaluated: {error}"
         except Exception as error:  # a worker failure is shown, never lost
             log.exception("evaluating the operating points failed")
-            return None, None, None, f"Operating points not evaluated: {type(error).__name__}: {error}"
+            return None, None, None, (), f"Operating points not evaluated: {type(error).__name__}: {error}"
 
-    def _apply(self, request, family, note, plant, gain, specs, report, common, envelope, message) -> None:
+    def _apply(self, request, family, note, plant, gain, specs, report, common, envelope, over_points,
+               message) -> None:
         if request != self._request:  # a newer design is on its way
             return
         stale = self._sampled_for is None or self._sampled_for != (id(plant), gain.tobytes(), id(specs))
         with param.edit_constant(self):
             self.param.update(family=family, family_note=note, report=report, common=common, envelope=envelope,
-                              result_is_current=not stale and self.result is not None, message=message)
+                              spec_over_points=over_points, result_is_current=not stale and self.result is not None,
+                              message=message)
         if family is not None and family.parameters and self.moved_parameter not in family.parameter_names:
             first = (family.varying_parameters or family.parameters)[0]
             self.move_parameter(first.name, first.nominal)

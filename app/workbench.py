@@ -30,7 +30,7 @@ from gainboard import core
 
 from .autosave import AutosaveStore
 from .refresh_policy import PLOT_VIEWS, RefreshPolicy, detail_options
-from .robustness_state import RobustnessState
+from .robustness_state import SAMPLING_CAUTION, RobustnessState
 from .room_link import RoomLink
 from .rooms import ROOM_PARAMETER
 from .scheduling import LatestOnly
@@ -143,6 +143,7 @@ class Workbench:
         # background thread and reports back through this session's event loop.
         self.robust = RobustnessState(state, deliver=self.run_in_session, background=document is not None)
         self.robust_panel = RobustnessPanel(self.robust, self.pole_map.figure)
+        self.robust.param.watch(self._on_robustness, ["revision", "result", "result_is_current"])
         if document is not None:
             state.refresh = served_refresh_policy()
 
@@ -209,6 +210,14 @@ class Workbench:
             margin=0,
             styles={"background": PALETTE["paper"]},
         )
+
+    def _on_robustness(self, *events) -> None:
+        """A plant family's operating points or sampling changed: the sliders and checks show them too."""
+        robust = self.robust
+        with pn.io.hold():
+            self.sliders.show_common(robust.common)
+            self.checks.show_family(robust.spec_over_points, robust.result, robust.result_is_current,
+                                    SAMPLING_CAUTION)
 
     # -- refresh cycle ------------------------------------------------------------------------
 

@@ -36,6 +36,8 @@ __all__ = [
     "parameter_boundaries",
     "ResponseEnvelope",
     "response_envelope",
+    "SpecOverPoints",
+    "spec_checks_over_points",
 ]
 
 
@@ -149,6 +151,63 @@ def evaluate_operating_points(family: PlantFamily, gain, specs=None, include_mar
 
 
 @dataclass(frozen=True)
+class SpecOverPoints:
+    """One spec check judged at every operating point: its worst case and how many points pass.
+
+    Attributes
+    ----------
+    name, subject, description : str
+        As in :class:`SpecCheck` (``subject`` names the input of a per-input spec).
+    required : float
+    worst_point : str
+        The point with the worst value: a failing one first, then one that could not be
+        evaluated, then the one closest to the limit (largest value for ``stable`` and the
+        ``max_…`` specs, smallest for the ``min_…`` specs).
+    worst_achieved : float
+    passed_points, points : int
+        How many points pass, out of how many.
+    """
+
+    name: str
+    subject: str
+    description: str
+    required: float
+    worst_point: str
+    worst_achieved: float
+    passed_points: int
+    points: int
+
+
+def spec_checks_over_points(report: OperatingPointsReport) -> tuple[SpecOverPoints, ...]:
+    """Every spec check of the nominal model, judged over all operating points.
+
+    Returns
+    -------
+    tuple of SpecOverPoints
+        In the order of the nominal model's checks; empty when no specs were checked.
+    """
+    by_key: dict = {}
+    for point in report.points:
+        spec_report = point.evaluation.spec_report
+        for check in (spec_report.checks if spec_report is not None else ()):
+            by_key.setdefault((check.name, check.subject), []).append((point.name, check))
+    result = []
+    for (name, subject), found in by_key.items():
+        larger_is_worse = not name.startswith("min_")
+
+        def badness(item):
+            check = item[1]
+            rank = 0 if check.passed is False else 1 if check.passed is None else 2
+            value = check.achieved if math.isfinite(check.achieved) else math.inf
+            return rank, -value if larger_is_worse else value
+
+        worst_name, worst = min(found, key=badness)
+        result.append(SpecOverPoints(name, subject, worst.description, worst.required, worst_name,
+                                     worst.achieved, sum(c.passed is True for _, c in found), len(found)))
+    return tuple(result)
+
+
+@dataclass(frozen=True)
 class ResponseEnvelope:
     """One output's response over every operating point, and the band it sweeps.
 
@@ -250,6 +309,21 @@ class CommonEntryInterval:
     intervals: tuple[tuple[float, float], ...]
     per_model: dict
     limiting_model: dict
+
+    @property
+    def entry_has_effect(self) -> bool:
+        """Whether the entry moves a pole of any model."""
+        return any(found.entry_has_effect for found in self.per_model.values())
+
+    @property
+    def never_stable_reason(self) -> str:
+        """Why no value works for every model ("" when some value does)."""
+        if self.intervals:
+            return ""
+        unstable = [name for name, found in self.per_model.items() if not found.intervals]
+        if unstable:
+            return f"no value is stable for {', '.join(unstable)}"
+        return "the stable values of the models do not overlap"
 
 
 def common_entry_intervals(family: PlantFamily, gain) -> dict:

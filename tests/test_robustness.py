@@ -288,3 +288,22 @@ def test_common_intervals_equal_brute_force_over_the_operating_points():
             inside = any(low < value < high for low, high in found.intervals)
             assert every == inside, (row, col, value)
     assert common[(0, 0)].limiting_model  # some model sets each end
+
+
+def test_spec_checks_over_points_give_each_specs_worst_point_and_pass_count():
+    family = parse_plant_family_text(THREE_POINTS)
+    specs = DesignSpecs(min_damping_ratio=0.3, max_overshoot_percent=20.0)
+    report = evaluate_operating_points(family, CUBIC_GAIN, specs=specs, include_margins=False)
+    from gainboard.core import spec_checks_over_points
+
+    over = {spec.name: spec for spec in spec_checks_over_points(report)}
+    # brute force: every point's own check of the same spec
+    for name, spec in over.items():
+        checks = [(p.name, c) for p in report.points for c in p.evaluation.spec_report.checks if c.name == name]
+        assert spec.points == len(checks) and spec.passed_points == sum(c.passed is True for _, c in checks)
+    # the overdriven point (g = 7, past the Routh–Hurwitz limit 6) is the worst for stability and damping
+    assert over["stable"].worst_point == "overdriven" and over["stable"].passed_points == 3
+    assert over["min_damping_ratio"].worst_point == "overdriven"
+    smallest = min(c.achieved for p in report.points for c in p.evaluation.spec_report.checks
+                   if c.name == "min_damping_ratio")
+    assert over["min_damping_ratio"].worst_achieved == smallest

@@ -97,8 +97,18 @@ def test_the_workbench_shows_the_points_the_cloud_and_the_common_ranges():
     assert len(panel.points_source.data["x"]) == 4 * 3
     assert "full payload, worn belt" in panel.points_table.object
     assert panel.strips.object.count("<svg") == 4
+    # under each gain slider: the values stable at every operating point, with the verdict of the current K
+    common = workbench.robust.common[(0, 0)]
+    strip = workbench.sliders._controls[(0, 0)].common_strip.object
+    assert "at every operating point" in strip and "<svg" in strip
+    assert ("✓" in strip) == any(a < workbench.state.gain[0, 0] < b for a, b in common.intervals)
+    # the checks tab: worst case per spec over the points
+    assert "over the operating points" in workbench.checks.family_pane.object
     workbench.robust.samples = 2000
     workbench.robust.start_sampling()
     workbench.robust.wait(60)
     assert len(panel.cloud_source.data["x"]) == 2000 * 4
     assert "never a proof of robustness" in panel.result_box.object
+    fraction = f"{workbench.robust.result.stable.fraction:.4f}"
+    assert "pass fractions of 2000 sampled models" in workbench.checks.family_pane.object
+    assert fraction in workbench.checks.family_pane.object

@@ -341,7 +341,7 @@ class RobustnessPanel:
             stale + note
             + f"<div class='gb-small'>{result.samples} samples, seed {result.seed}. The cloud on the pole map shows "
               f"{min(result.samples, len(result.poles))} sampled models.</div>"
-            + f"<table class='gb-table'><tr><th>share of samples</th><th>fraction</th>"
+            + f"<table class='gb-table gb-robust-fractions'><tr><th>share of samples</th><th>fraction</th>"
               f"<th>{result.stable.confidence:.0%} Wilson interval</th></tr>" + "".join(rows) + "</table>"
             + "<table class='gb-table'><tr><th>worst sample of</th><th>value</th><th>parameters</th></tr>"
             + worst

@@ -63,7 +63,7 @@ def test_operating_points_and_a_sampled_cloud_of_ten_thousand_models(workbench):
     _sample(page, 10_000)
     workbench.wait_for(lambda: _cloud_size(page) == 40_000, "10 000 sampled models (4 poles each) on the pole map",
                        timeout_ms=90_000)
-    shown = page.locator(".gb-table").filter(has_text="fraction").first.inner_text()
+    shown = page.locator(".gb-robust-fractions").first.inner_text()
     # the same plan in this process (the sampling is bit-for-bit reproducible from its seed)
     plan = core.plan_monte_carlo(family, gain, samples=10_000, seed=0, specs=family.nominal.specs,
                                  include_margins=core.margins_needed(family.nominal.specs))
@@ -74,6 +74,16 @@ def test_operating_points_and_a_sampled_cloud_of_ten_thousand_models(workbench):
     assert "never a proof of robustness" in caution.inner_text()
     caution.scroll_into_view_if_needed()
     workbench.screenshot("robust-01-sampled-cloud")
+    workbench.open_tab("Checks")
+    checks = page.locator(".gb-pass-fractions")
+    workbench.wait_for(lambda: checks.count() and f"{expected.stable.fraction:.4f}" in checks.first.inner_text(),
+                       "the pass fractions in the checks tab")
+    assert page.locator(".gb-specs-over-points").count() == 1
+    page.locator(".gb-specs-over-points").first.scroll_into_view_if_needed()
+    workbench.screenshot("robust-04-checks-over-points")
+    common = page.locator(".gb-common-strip-1-1 .gb-interval-text")
+    workbench.wait_for(lambda: common.count() and "at every operating point" in common.first.inner_text(),
+                       "the strip of values stable at every operating point under the k11 slider")
     # zoom the pole map onto the poles to look at the cloud (Bokeh's own ranges, as the wheel zoom sets them)
     page.evaluate("""() => { const f = Bokeh.documents[0].get_model_by_name('pole_map');
         f.x_range.setv({start: -9, end: 1}); f.y_range.setv({start: -5, end: 5}); }""")
