@@ -109,3 +109,18 @@ def test_an_unreachable_scheduler_is_reported_with_what_to_do():
     with pytest.raises(AnalysisError, match=r"cannot reach the Dask scheduler .*dask scheduler"):
         run_monte_carlo_on_dask(plan, f"tcp://127.0.0.1:{_free_port()}", connect_timeout=2.0)
     assert time.perf_counter() - started < 60
+
+
+def test_a_long_run_starts_a_local_cluster_of_worker_processes_and_gives_the_same_figures(monkeypatch):
+    import gainboard.core._distributed as distributed_runs
+
+    family = parse_plant_family_text(CUBIC_FAMILY)
+    plan = plan_monte_carlo(family, CUBIC_GAIN, samples=8000, seed=12, chunk_size=1000)
+    # every run counts as long here, so the local cluster (one worker process per core) starts and stops
+    monkeypatch.setattr(distributed_runs, "IN_PROCESS_SECONDS", 0.0)
+    result, where = distributed_runs.run_monte_carlo_where_fastest(plan)
+    import os
+
+    if (os.cpu_count() or 1) > 1:
+        assert where.startswith("local cluster of")
+    _assert_identical(result, run_monte_carlo(plan))
