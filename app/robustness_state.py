@@ -43,6 +43,8 @@ class RobustnessState(param.Parameterized):
     common = param.Parameter(default=None, constant=True,
                              doc="Gain entry → CommonEntryInterval: values stable for every operating point.")
     envelope = param.Parameter(default=None, constant=True, doc="ResponseEnvelope of the reference step.")
+    envelopes = param.Dict(default={}, constant=True,
+                           doc="Response kind → one ResponseEnvelope per output, over the operating points.")
     spec_over_points = param.Parameter(default=(), constant=True,
                                        doc="Each spec's worst case and pass count over the operating points.")
     moved_parameter = param.String(default="", doc="The parameter moved in the parameter panel.")
@@ -148,26 +150,30 @@ class RobustnessState(param.Parameterized):
     def _judge(family, gain, specs):
         """(report, common, envelope, spec_over_points, message) of K on the family: the core's calls only."""
         if family is None:
-            return None, None, None, (), ""
+            return None, None, (None, {}), (), ""
         try:
             report = core.evaluate_operating_points(family, gain, specs=specs)
             common = core.common_entry_intervals(family, gain)
+            outputs = range(family.nominal.output_count)
+            envelopes = {kind: tuple(core.response_envelope(report, kind, k) for k in outputs)
+                         for kind in ("initial", "step", "disturbance")
+                         if getattr(report.points[0].evaluation.responses, kind) is not None}
             envelope = core.response_envelope(report, "step") or core.response_envelope(report, "initial")
-            return report, common, envelope, core.spec_checks_over_points(report), ""
+            return report, common, (envelope, envelopes), core.spec_checks_over_points(report), ""
         except core.GainboardError as error:
-            return None, None, None, (), f"Operating points not evaluated: {error}"
+            return None, None, (None, {}), (), f"Operating points not evaluated: {error}"
         except Exception as error:  # a worker failure is shown, never lost
             log.exception("evaluating the operating points failed")
-            return None, None, None, (), f"Operating points not evaluated: {type(error).__name__}: {error}"
+            return None, None, (None, {}), (), f"Operating points not evaluated: {type(error).__name__}: {error}"
 
-    def _apply(self, request, family, note, plant, gain, specs, report, common, envelope, over_points,
+    def _apply(self, request, family, note, plant, gain, specs, report, common, envelopes, over_points,
                message) -> None:
         if request != self._request:  # a newer design is on its way
             return
         stale = self._sampled_for is None or self._sampled_for != (id(plant), gain.tobytes(), id(specs))
         with param.edit_constant(self):
-            self.param.update(family=family, family_note=note, report=report, common=common, envelope=envelope,
-                              spec_over_points=over_points, result_is_current=not stale and self.result is not None,
+            self.param.update(family=family, family_note=note, report=report, common=common,
+                              envelope=envelopes[0], envelopes=envelopes[1], spec_over_points=over_points, result_is_current=not stale and self.result is not None,
                               message=message)
         if family is not None and family.parameters and self.moved_parameter not in family.parameter_names:
             first = (family.varying_parameters or family.parameters)[0]

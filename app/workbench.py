@@ -142,7 +142,10 @@ class Workbench:
         # Operating points and sampling follow the state on their own; a sampling runs in a
         # background thread and reports back through this session's event loop.
         self.robust = RobustnessState(state, deliver=self.run_in_session, background=document is not None)
-        self.robust_panel = RobustnessPanel(self.robust, self.pole_map.figure)
+        self.robust_panel = RobustnessPanel(self.robust, self.pole_map.figure, self.responses.output_figure)
+        self.responses.kind.param.watch(lambda event: self.robust_panel.show_response_band(self.responses.kind_name),
+                                        "value")
+        self.robust_panel.show_response_band(self.responses.kind_name)
         self.robust.param.watch(self._on_robustness, ["revision", "result", "result_is_current"])
         if document is not None:
             state.refresh = served_refresh_policy()

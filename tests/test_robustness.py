@@ -307,3 +307,21 @@ def test_spec_checks_over_points_give_each_specs_worst_point_and_pass_count():
     smallest = min(c.achieved for p in report.points for c in p.evaluation.spec_report.checks
                    if c.name == "min_damping_ratio")
     assert over["min_damping_ratio"].worst_achieved == smallest
+
+
+def test_response_envelope_contains_every_points_response_and_touches_the_extremes():
+    from gainboard.core import response_envelope
+
+    family = parse_plant_family_text(THREE_POINTS.replace("g = 7.0", "g = 4.0"))
+    report = evaluate_operating_points(family, CUBIC_GAIN, include_margins=False)
+    envelope = response_envelope(report, "initial", 0)
+    stacked = []
+    for point in report.points:
+        time, values = point.evaluation.responses.initial.time, point.evaluation.responses.initial.outputs[:, 0]
+        inside = envelope.time <= time[-1]
+        # reference: numpy's linear interpolation of each point's own response onto the band's grid
+        on_grid = np.interp(envelope.time[inside], time, values)
+        assert np.all(envelope.lower[inside] <= on_grid + 1e-12) and np.all(on_grid <= envelope.upper[inside] + 1e-12)
+        stacked.append(np.where(inside, np.interp(envelope.time, time, values), np.nan))
+    np.testing.assert_array_equal(envelope.upper, np.nanmax(np.vstack(stacked), axis=0))
+    np.testing.assert_array_equal(envelope.lower, np.nanmin(np.vstack(stacked), axis=0))

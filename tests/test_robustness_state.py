@@ -102,6 +102,8 @@ def test_the_workbench_shows_the_points_the_cloud_and_the_common_ranges():
     strip = workbench.sliders._controls[(0, 0)].common_strip.object
     assert "at every operating point" in strip and "<svg" in strip
     assert ("✓" in strip) == any(a < workbench.state.gain[0, 0] < b for a, b in common.intervals)
+    # the response plot: one shaded band per output of the response shown
+    assert len(panel.band_source.data["xs"]) == plant.output_count
     # the checks tab: worst case per spec over the points
     assert "over the operating points" in workbench.checks.family_pane.object
     workbench.robust.samples = 2000

@@ -65,10 +65,19 @@ class RobustnessPanel:
     robust : RobustnessState
     pole_figure : bokeh figure
         The workbench's pole map, which gets the operating-point, cloud and moved-parameter layers.
+    response_figure : bokeh figure, optional
+        The workbench's output-response plot, which gets the band each output sweeps over the
+        operating points (see :meth:`show_response_band`).
     """
 
-    def __init__(self, robust, pole_figure):
+    def __init__(self, robust, pole_figure, response_figure=None):
         self.robust = robust
+        self.band_source = ColumnDataSource({"xs": [], "ys": [], "colour": []}, name="response_bands")
+        self._band_kind = "initial"
+        if response_figure is not None:
+            band = response_figure.patches("xs", "ys", source=self.band_source, fill_color="colour",
+                                           fill_alpha=0.16, line_alpha=0, name="operating_point_bands")
+            response_figure.renderers = [band, *[r for r in response_figure.renderers if r is not band]]
         self.cloud_source = ColumnDataSource({"x": [], "y": []}, name="sampled_cloud")
         self.points_source = ColumnDataSource({"x": [], "y": [], "marker": [], "name": []}, name="operating_points")
         self.moved_source = ColumnDataSource({"x": [], "y": []}, name="moved_parameter_poles")
@@ -156,6 +165,21 @@ class RobustnessPanel:
 
     # -- refreshing from the state ---------------------------------------------------------------
 
+    def show_response_band(self, kind: str | None = None) -> None:
+        """Shade, on the response plot, the band each output of response ``kind`` sweeps over the points."""
+        self._band_kind = kind or self._band_kind
+        xs, ys, colours = [], [], []
+        for index, envelope in enumerate(self.robust.envelopes.get(self._band_kind, ()) if self.robust.report else ()):
+            if envelope is None:
+                continue
+            keep = np.isfinite(envelope.lower) & np.isfinite(envelope.upper)
+            time = envelope.time[keep]
+            # one polygon per output: along the upper edge, back along the lower one
+            xs.append(np.concatenate([time, time[::-1]]).astype(np.float32))
+            ys.append(np.concatenate([envelope.upper[keep], envelope.lower[keep][::-1]]).astype(np.float32))
+            colours.append(trace_colour(index))
+        update_source(self.band_source, {"xs": xs, "ys": ys, "colour": colours})
+
     def _show_progress(self) -> None:
         robust = self.robust
         self.progress.visible = robust.running
@@ -179,6 +203,7 @@ class RobustnessPanel:
             update_source(self.envelope_source, {"x": [], "lower": [], "upper": []})
             update_source(self.traces_source, {"xs": [], "ys": [], "colour": []})
             return
+        self.show_response_band()
         self._refresh_summary(family, report)
         self._refresh_points(report)
         self._refresh_envelope()
@@ -206,7 +231,8 @@ class RobustnessPanel:
             f"<span class='gb-glyph'>{POINT_GLYPHS[_marker(i)]}</span> {escape(point.name)}"
             for i, point in enumerate(report.points) if i > 0)
             + ", <span style='color:" + CLOUD_COLOUR + "'>faint dots</span> sampled models, "
-            "<span style='color:" + MOVED_COLOUR + "'>○</span> the moved parameter.")
+            "<span style='color:" + MOVED_COLOUR + "'>○</span> the moved parameter. On the response plots, "
+            "shaded bands: the range of each output over the operating points.")
         self.summary.object = (
             f"<div class='gb-note'>{verdict}</div><div class='gb-small'>{legend}</div>"
             "<table class='gb-table'><tr><th>parameter</th><th>nominal</th><th>unit</th><th>sampled as</th></tr>"

@@ -84,6 +84,11 @@ def test_operating_points_and_a_sampled_cloud_of_ten_thousand_models(workbench):
     common = page.locator(".gb-common-strip-1-1 .gb-interval-text")
     workbench.wait_for(lambda: common.count() and "at every operating point" in common.first.inner_text(),
                        "the strip of values stable at every operating point under the k11 slider")
+    workbench.open_tab("Responses")
+    bands = "() => Bokeh.documents[0].get_model_by_name('response_bands').data.xs.length"
+    workbench.wait_for(lambda: page.evaluate(bands) == family.nominal.output_count,
+                       "one band per output over the operating points on the response plot")
+    workbench.screenshot("robust-05-response-bands")
     # zoom the pole map onto the poles to look at the cloud (Bokeh's own ranges, as the wheel zoom sets them)
     page.evaluate("""() => { const f = Bokeh.documents[0].get_model_by_name('pole_map');
         f.x_range.setv({start: -9, end: 1}); f.y_range.setv({start: -5, end: 5}); }""")
