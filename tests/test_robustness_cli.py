@@ -78,3 +78,15 @@ def test_evaluate_and_sweep_use_the_named_operating_point(family_file, capsys):
     assert json.loads(out)["stable_intervals"] == [pytest.approx([0.0, 6 / 2.5], abs=1e-9)]
     code, out, err = run(capsys, "evaluate", family_file, "--gain", "[[1, 0, 0]]", "--operating-point", "medium")
     assert code == 2 and "no operating point 'medium'" in err and "heavy" in err
+
+
+def test_a_family_with_operating_points_only_is_judged_exactly_and_not_sampled(tmp_path, capsys):
+    path = tmp_path / "points_only.toml"
+    path.write_text(THREE_POINTS.replace("low = -1.0\nhigh = 10.0\n", ""))  # g fixed: nothing to sample
+    code, out, _ = run(capsys, "robustness", path, "--gain", "[[1, 0, 0]]", "--json")
+    record = json.loads(out)
+    assert code == 1 and record["samples"] == 0 and record["stable_fraction"] is None
+    assert "nothing was sampled" in record["note"] and len(record["operating_points"]) == 4
+    # asking for a stable fraction that was never measured fails rather than passing silently
+    code, _, _ = run(capsys, "robustness", path, "--gain", "[[0.1, 0, 0]]", "--require-stable-fraction", "0.5")
+    assert code == 1
