@@ -78,9 +78,9 @@ def _bilinear(coefficients: np.ndarray) -> np.ndarray:
     count, size = coefficients.shape
     n = size - 1
     result = np.zeros((count, size))
-    plus = np.polynomial.polynomial
+    polynomial = np.polynomial.polynomial
     for k in range(size):  # term p_k (1 + w)^k (1 − w)^(n − k)
-        basis = plus.polymul(plus.polypow([1.0, 1.0], k), plus.polypow([1.0, -1.0], n - k))
+        basis = polynomial.polymul(polynomial.polypow([1.0, 1.0], k), polynomial.polypow([1.0, -1.0], n - k))
         result += coefficients[:, k : k + 1] * basis[None, :]
     return result
 

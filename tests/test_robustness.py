@@ -325,3 +325,27 @@ def test_response_envelope_contains_every_points_response_and_touches_the_extrem
         stacked.append(np.where(inside, np.interp(envelope.time, time, values), np.nan))
     np.testing.assert_array_equal(envelope.upper, np.nanmax(np.vstack(stacked), axis=0))
     np.testing.assert_array_equal(envelope.lower, np.nanmin(np.vstack(stacked), axis=0))
+
+
+@settings(deadline=None, max_examples=30)
+@given(st.integers(0, 2**32 - 1), st.sampled_from([None, 0.2]))
+def test_batched_verdicts_agree_with_the_single_model_report_away_from_the_boundary(seed, sample_time):
+    from gainboard.core import analyze_state_matrix
+
+    rng = np.random.default_rng(seed)
+    stack = rng.normal(size=(20, 4, 4)) * (0.5 if sample_time else 1.0)
+    _, margin, verdict = stability_verdicts(stack, sample_time)
+    for matrix, m, v in zip(stack, margin, verdict):
+        report = analyze_state_matrix(matrix, sample_time)
+        assert m == pytest.approx(report.stability_margin, abs=1e-12)
+        if abs(m) > 1e-9:
+            assert (v == 1) == report.stable
+
+
+def test_a_pole_exactly_on_the_boundary_gets_the_boundary_verdict():
+    # double integrator with K = [0, 1]: poles 0 and −1 (continuous); ZOH of it, T = 1 (reference case 9),
+    # with K = [0, 1]: z = 1 is a pole (Φ − ΓK keeps the first column of Φ)
+    continuous = np.array([[[0.0, 1.0], [0.0, -1.0]]])
+    sampled = np.array([[[1.0, 0.5], [0.0, 0.0]]])
+    assert stability_verdicts(continuous, None)[2][0] == 0
+    assert stability_verdicts(sampled, 1.0)[2][0] == 0
