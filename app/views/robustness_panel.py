@@ -74,18 +74,16 @@ class RobustnessPanel:
         self.robust = robust
         self.band_source = ColumnDataSource({"xs": [], "ys": [], "colour": []}, name="response_bands")
         self._band_kind = "initial"
-        if response_figure is not None:
-            band = response_figure.patches("xs", "ys", source=self.band_source, fill_color="colour",
-                                           fill_alpha=0.16, line_alpha=0, name="operating_point_bands")
-            response_figure.renderers = [band, *[r for r in response_figure.renderers if r is not band]]
+        if response_figure is not None:  # an underlay, like the cloud: the traces stay first and on top
+            response_figure.patches("xs", "ys", source=self.band_source, fill_color="colour", fill_alpha=0.16,
+                                    line_alpha=0, name="operating_point_bands", level="underlay")
         self.cloud_source = ColumnDataSource({"x": [], "y": []}, name="sampled_cloud")
         self.points_source = ColumnDataSource({"x": [], "y": [], "marker": [], "name": []}, name="operating_points")
         self.moved_source = ColumnDataSource({"x": [], "y": []}, name="moved_parameter_poles")
-        # faint enough that 10 000 overlapping samples shade a density rather than a solid blot
-        cloud = pole_figure.scatter("x", "y", source=self.cloud_source, size=2.5, color=CLOUD_COLOUR, alpha=0.05,
-                                    line_alpha=0, name="cloud")
-        # the cloud goes under everything else; the operating points above the locus
-        pole_figure.renderers = [cloud, *[r for r in pole_figure.renderers if r is not cloud]]
+        # faint enough that 10 000 overlapping samples shade a density rather than a solid blot; drawn as an
+        # underlay (below every glyph) without reordering the map's renderers, which others look up by place
+        pole_figure.scatter("x", "y", source=self.cloud_source, size=2.5, color=CLOUD_COLOUR, alpha=0.05,
+                            line_alpha=0, name="cloud", level="underlay")
         pole_figure.scatter("x", "y", source=self.points_source, marker="marker", size=11, fill_alpha=0,
                             line_color=POINT_COLOUR, line_width=2.0, name="operating_point_poles")
         pole_figure.scatter("x", "y", source=self.moved_source, marker="circle", size=12, fill_alpha=0,
