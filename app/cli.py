@@ -18,12 +18,12 @@ import numpy as np
 
 from gainboard import core
 
-from . import cli_output
+from . import cli_estimator, cli_output
 from .pole_list import parse_pole_list
 from .robustness_command import add_robustness_parser
 
 #: Options whose value may start with '-' (negative poles, gains, states).
-_VALUE_OPTIONS = ("--poles", "--gain", "--x0", "--entry", "--range")
+_VALUE_OPTIONS = ("--poles", "--gain", "--x0", "--entry", "--range") + cli_estimator.VALUE_OPTIONS
 
 
 class UsageError(Exception):
@@ -158,7 +158,8 @@ def command_evaluate(args) -> int:
     )
     evaluation = core.evaluate_design(plant, gain, options)
     record = cli_output.evaluation_record(evaluation, specs_given=specs is not None)
-    cli_output.emit(record, args.json, cli_output.evaluation_table)
+    cli_estimator.add_compensator_to_evaluation(args, plant, evaluation, record)
+    cli_output.emit(record, args.json, cli_estimator.evaluation_table)
     spec_report = evaluation.spec_report
     return 1 if spec_report is not None and not spec_report.all_passed else 0
 
@@ -179,7 +180,8 @@ def command_export(args) -> int:
     from .design_file import load_design
     from .export import export_design
 
-    text = export_design(load_design(args.design), args.format)
+    text = export_design(load_design(args.design), args.format, sample_time=args.sample_time,
+                         sampled_form=args.sampled_form)
     if args.output:
         from .design_file import write_text_atomically
 
@@ -260,7 +262,10 @@ def build_parser() -> argparse.ArgumentParser:
     evaluate.add_argument("--horizon", type=float, help="simulation length in seconds (default: from the slowest pole)")
     evaluate.add_argument("--operating-point", metavar="NAME", help=point_help)
     evaluate.add_argument("--json", action="store_true", help="print JSON instead of a table")
+    cli_estimator.add_evaluate_options(evaluate)
     evaluate.set_defaults(handler=command_evaluate)
+
+    cli_estimator.add_estimator_command(commands, plant_help, gain_help)
 
     sweep = commands.add_parser("sweep", help="exact stable range and pole locus of one gain entry k_ij")
     sweep.add_argument("plant", help=plant_help)
@@ -278,6 +283,11 @@ def build_parser() -> argparse.ArgumentParser:
     export.add_argument("--format", required=True, choices=("json", "csv", "c", "python", "html"),
                         help="json, csv, c (a C header), python (a snippet) or html (a standalone design report)")
     export.add_argument("-o", "--output", help="write to this file instead of standard output")
+    export.add_argument("--sample-time", type=float, metavar="T",
+                        help="controller period in seconds for a continuous design with an estimator "
+                             "(the compensator is discretised and the file says how)")
+    export.add_argument("--sampled-form", choices=("prediction", "current"), default="prediction",
+                        help="sampled estimator form for a continuous full-order design (default: prediction)")
     export.set_defaults(handler=command_export)
 
     plants = commands.add_parser("plants", help="list the bundled sample plants")

@@ -1,22 +1,23 @@
-"""Design files: a whole design (plant, K, prefilter, integral gains, specs, notes, gain history) as JSON.
+"""Design files: a whole design (plant, K, prefilter, integral gains, estimator, specs, notes, gain history) as JSON.
 
 The format is ours and versioned::
 
     {
       "format": "gainboard-design",
-      "version": 1,
+      "version": 2,
       "caution": "...",
       "created": "2026-03-01T09:30:00.000+00:00",
       "modified": "2026-03-01T10:02:13.511+00:00",
       "plant": { ...the keys of a TOML plant file... },
       "gain": {"K": [[...]], "prefilter": [[...]] or null, "integral": [[...]] or null},
+      "estimator": {"form": ..., "L": [[...]], ...} or null,   (version 2; see app/estimator_settings.py)
       "specs": { ...the keys of [specs]... } or null,
       "notes": "free text",
       "gain_history": [{"time": "...", "K": [[...]]}, ...]
     }
 
 The plant section has exactly the key structure of a TOML plant file (see the README),
-so it is validated by the same code (:func:`gainboard.core.plant_from_mapping`); the
+(version 2 adds its optional ``[noise]`` table), so it is validated by the same code (:func:`gainboard.core.plant_from_mapping`); the
 one difference is that an unbounded actuator limit is written ``"inf"`` / ``"-inf"``
 because JSON has no infinity.
 
@@ -25,6 +26,10 @@ the same double), so saving and loading keeps every bit, including ``-0.0`` and
 subnormal numbers. Reading never executes code: it is :func:`json.loads` (with NaN,
 Infinity and duplicate keys refused) followed by field-by-field validation, and the
 file size is bounded by :data:`MAX_DESIGN_FILE_BYTES`.
+
+Version 2 added the estimator (observer) gain L and its settings, and the plant's noise
+intensities. Version 1 files (state feedback only) are still read; files are always
+written as version 2.
 """
 
 from __future__ import annotations
@@ -42,9 +47,13 @@ import numpy as np
 
 from gainboard import core
 
+from .estimator_settings import EstimatorDesign, estimator_from_mapping, estimator_to_mapping
+
 __all__ = [
     "DESIGN_FORMAT",
     "DESIGN_FORMAT_VERSION",
+    "READABLE_DESIGN_VERSIONS",
+    "EstimatorDesign",
     "MAX_DESIGN_FILE_BYTES",
     "MAX_GAIN_HISTORY",
     "CONTROL_LAW",
@@ -63,8 +72,10 @@ __all__ = [
 
 #: Value of the "format" key that marks a gainboard design file.
 DESIGN_FORMAT = "gainboard-design"
-#: The design-file version this gainboard writes and reads.
-DESIGN_FORMAT_VERSION = 1
+#: The design-file version this gainboard writes.
+DESIGN_FORMAT_VERSION = 2
+#: The design-file versions this gainboard reads (1: state feedback only; 2: with the estimator).
+READABLE_DESIGN_VERSIONS = (1, 2)
 #: Largest design file accepted, in bytes (a 50-state plant with a full gain history is about 1 MB).
 MAX_DESIGN_FILE_BYTES = 8_000_000
 #: Most gain-history entries kept; older entries are dropped first by :meth:`Design.with_gain`.
@@ -79,7 +90,8 @@ CONTROL_LAW = (
     "as in gainboard.core.augment_with_integral_action); a design without N or Ki leaves that term out"
 )
 
-_TOP_LEVEL_KEYS = {"format", "version", "caution", "created", "modified", "plant", "gain", "specs", "notes", "gain_history"}
+_TOP_LEVEL_KEYS = {"format", "version", "caution", "created", "modified", "plant", "gain", "specs", "notes", "gain_history",
+                   "estimator"}
 _REQUIRED_KEYS = ("format", "version", "plant", "gain")
 _GAIN_KEYS = {"K", "prefilter", "integral"}
 
@@ -159,6 +171,9 @@ class Design:
         Reference prefilter N (inputs × tracked outputs), ``t = len(plant.tracked_outputs)``.
     integral_gain : array_like, shape (m, t), optional
         Gain Ki on the integrals of the tracking errors; see :data:`CONTROL_LAW`.
+    estimator : EstimatorDesign, optional
+        The estimator (observer) gain L and its settings; ``None`` for full-state feedback.
+        With it the controller is the compensator u = −K x̂ (+ N r − Ki ξ).
     specs : gainboard.core.DesignSpecs, optional
         The specs this design is checked against (``None``: none chosen; see :attr:`effective_specs`).
     notes : str
@@ -169,7 +184,8 @@ class Design:
     created, modified : str
         ISO 8601 date-times (UTC by default).
     format_version : int
-        Design-file format version; only :data:`DESIGN_FORMAT_VERSION` exists.
+        Design-file format version it was read from (one of :data:`READABLE_DESIGN_VERSIONS`);
+        files are always written as :data:`DESIGN_FORMAT_VERSION`.
 
     Examples
     --------
@@ -183,6 +199,7 @@ class Design:
     gain: np.ndarray
     prefilter: np.ndarray | None = None
     integral_gain: np.ndarray | None = None
+    estimator: EstimatorDesign | None = None
     specs: core.DesignSpecs | None = None
     notes: str = ""
     gain_history: tuple = ()
@@ -197,6 +214,10 @@ class Design:
         set_("gain", _frozen_matrix(self.plant.check_gain(self.gain)))
         set_("prefilter", _reference_matrix(self.plant, self.prefilter, "prefilter N"))
         set_("integral_gain", _reference_matrix(self.plant, self.integral_gain, "integral gain Ki"))
+        if self.estimator is not None:
+            if not isinstance(self.estimator, EstimatorDesign):
+                raise DesignFileError(f"estimator must be EstimatorDesign or None, got {type(self.estimator).__name__}")
+            set_("estimator", self.estimator.checked_for(self.plant))
         if self.specs is not None and not isinstance(self.specs, core.DesignSpecs):
             raise DesignFileError(f"specs must be gainboard.core.DesignSpecs or None, got {type(self.specs).__name__}")
         if not isinstance(self.notes, str):
@@ -220,10 +241,11 @@ class Design:
         set_("gain_history", tuple(checked))
         _check_timestamp(self.created, "the creation time")
         _check_timestamp(self.modified, "the modification time")
-        if isinstance(self.format_version, bool) or self.format_version != DESIGN_FORMAT_VERSION:
+        if isinstance(self.format_version, bool) or self.format_version not in READABLE_DESIGN_VERSIONS:
             raise DesignFileError(
                 f"design format version {self.format_version!r} is not known; this gainboard "
-                f"writes and reads version {DESIGN_FORMAT_VERSION}"
+                f"writes version {DESIGN_FORMAT_VERSION} and reads versions "
+                f"{', '.join(str(v) for v in READABLE_DESIGN_VERSIONS)}"
             )
 
     @property
@@ -334,6 +356,8 @@ def plant_to_mapping(plant: core.Plant) -> dict:
         "outputs": outputs,
         "disturbance": disturbance,
     }
+    if plant.noise is not None:
+        mapping["noise"] = {"process": _rows(plant.noise.process), "measurement": _rows(plant.noise.measurement)}
     if plant.specs is not None:
         if not isinstance(plant.specs, core.DesignSpecs):
             raise DesignFileError(f"the plant's specs must be DesignSpecs to be saved, got {type(plant.specs).__name__}")
@@ -367,6 +391,10 @@ def _same_bits(a, b) -> bool:
 def _plant_differences(original: core.Plant, rebuilt: core.Plant) -> list[str]:
     """Names of the plant fields that did not survive the mapping bit for bit."""
     differences = [key for key in ("A", "B", "C", "D", "disturbance_matrix", "initial_state") if not _same_bits(getattr(original, key), getattr(rebuilt, key))]
+    noises = (original.noise, rebuilt.noise)
+    if (noises[0] is None) != (noises[1] is None) or (noises[0] is not None and not (
+            _same_bits(noises[0].process, noises[1].process) and _same_bits(noises[0].measurement, noises[1].measurement))):
+        differences.append("noise")
     for key in (
         "sample_time", "name", "summary", "description", "state_names", "state_units", "input_names",
         "input_units", "output_names", "output_units", "input_limits", "tracked_outputs",
@@ -433,6 +461,7 @@ def _design_document(design: Design) -> dict:
             "prefilter": None if design.prefilter is None else _rows(design.prefilter),
             "integral": None if design.integral_gain is None else _rows(design.integral_gain),
         },
+        "estimator": estimator_to_mapping(design.estimator),
         "specs": None if design.specs is None else _specs_to_mapping(design.specs),
         "notes": design.notes,
         "gain_history": [{"time": when, "K": _rows(past)} for when, past in design.gain_history],
@@ -552,12 +581,14 @@ def _design_from_document(data, source: str) -> Design:
     version = data.get("version")
     if isinstance(version, bool) or not isinstance(version, int):
         raise DesignFileError(f"{source}: \"version\" must be a whole number, found {version!r}")
-    if version != DESIGN_FORMAT_VERSION:
+    if version not in READABLE_DESIGN_VERSIONS:
         newer = " It was written by a newer gainboard; update gainboard to open it." if version > DESIGN_FORMAT_VERSION else ""
         raise DesignFileError(
-            f"{source}: design format version {version} is not known; this gainboard reads version "
-            f"{DESIGN_FORMAT_VERSION}.{newer}"
+            f"{source}: design format version {version} is not known; this gainboard reads versions "
+            f"{', '.join(str(v) for v in READABLE_DESIGN_VERSIONS)}.{newer}"
         )
+    if version == 1 and "estimator" in data:
+        raise DesignFileError(f"{source}: \"estimator\" is new in design format version 2, but this file says version 1")
     missing = [key for key in _REQUIRED_KEYS if key not in data]
     if missing:
         raise DesignFileError(f"{source}: the required key(s) {missing} are missing")
@@ -580,6 +611,11 @@ def _design_from_document(data, source: str) -> Design:
     prefilter = None if prefilter is None else _matrix_from_json(prefilter, f"{source}: gain prefilter")
     integral = gains.get("integral")
     integral = None if integral is None else _matrix_from_json(integral, f"{source}: gain integral")
+
+    try:
+        estimator = estimator_from_mapping(data.get("estimator"), f"{source}: estimator")
+    except core.GainboardError as error:
+        raise DesignFileError(str(error)) from None
 
     specs = data.get("specs")
     if specs is not None:
@@ -608,6 +644,7 @@ def _design_from_document(data, source: str) -> Design:
         gain=gain,
         prefilter=prefilter,
         integral_gain=integral,
+        estimator=estimator,
         specs=specs,
         notes=notes,
         gain_history=tuple(history),

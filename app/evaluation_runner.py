@@ -39,6 +39,11 @@ class EvaluationRequest:
         The state's inputs this evaluation describes (restored if a newer one fails).
     refine : gainboard.core.DesignEvaluation or None
         When set, the request only adds the stable intervals of every entry to this evaluation.
+    estimator_gain : numpy.ndarray or None
+        L of the design's estimator; with it the result is a
+        :class:`gainboard.core.ObserverDesignEvaluation` (the compensator evaluated too).
+    estimator_options : gainboard.core.EstimatorOptions or None
+        What to compute for the estimator side.
     """
 
     sequence: int
@@ -48,6 +53,8 @@ class EvaluationRequest:
     detail: Detail
     inputs: dict
     refine: object | None = None
+    estimator_gain: np.ndarray | None = None
+    estimator_options: object | None = None
 
 
 #: ``deliver(request, evaluation, error)``: exactly one of evaluation and error is None.
@@ -55,10 +62,25 @@ Delivery = Callable[[EvaluationRequest, object, BaseException], None]
 
 
 def evaluate_request(request: EvaluationRequest):
-    """The computation itself (the same in every runner): one call of the core."""
-    if request.refine is not None:
-        return core.with_all_entry_intervals(request.refine)
-    return core.evaluate_design(request.plant, request.gain, request.options)
+    """The computation itself (the same in every runner): one call of the core.
+
+    With an estimator gain the result is an :class:`gainboard.core.ObserverDesignEvaluation`:
+    full-state feedback of K and the compensator with L, sharing the margins of K.
+    """
+    refine = request.refine
+    if isinstance(refine, core.ObserverDesignEvaluation):
+        refine = refine.design
+    if request.estimator_gain is None:
+        if refine is not None:
+            return core.with_all_entry_intervals(refine)
+        return core.evaluate_design(request.plant, request.gain, request.options)
+    if refine is None:
+        return core.evaluate_observer_design(request.plant, request.gain, request.estimator_gain, request.options,
+                                             request.estimator_options)
+    design = core.with_all_entry_intervals(refine)
+    compensator = core.evaluate_compensator(request.plant, design.gain, request.estimator_gain,
+                                            request.estimator_options, state_feedback_margins=design.margins)
+    return core.ObserverDesignEvaluation(design=design, compensator=compensator)
 
 
 class InlineRunner:

@@ -49,8 +49,13 @@ GAIN_EXPORT_FORMAT = "gainboard-gains"
 _IDENTIFIER_LENGTH = 28
 
 
-def export_design(design: Design, format: str) -> str:  # noqa: A002 - the command line's own word
+def export_design(design: Design, format: str, *, sample_time: float | None = None,  # noqa: A002 - the command line's own word
+                  sampled_form: str = "prediction") -> str:
     """The gains of ``design`` as text in one of :data:`EXPORT_FORMATS`.
+
+    A design with an estimator exports its observer-based compensator as JSON, C and
+    Python (:mod:`gainboard.app.compensator_export`; ``sample_time`` and ``sampled_form``
+    make a continuous design ready for a controller period); CSV and HTML describe K.
 
     Parameters
     ----------
@@ -79,6 +84,12 @@ def export_design(design: Design, format: str) -> str:  # noqa: A002 - the comma
     """
     if not isinstance(design, Design):
         raise DesignFileError(f"export needs a Design, got {type(design).__name__}")
+    if design.estimator is not None and format in ("json", "c", "python"):
+        from .compensator_export import export_compensator
+
+        return export_compensator(design, format, sample_time, sampled_form)
+    if sample_time is not None:
+        raise DesignFileError("a sample time applies to exporting a compensator; this design has no estimator")
     writers = {"json": export_json, "csv": export_csv, "c": export_c_header, "python": export_python}
     if format == "html":
         from .report import design_report_html

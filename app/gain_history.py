@@ -20,12 +20,18 @@ def _same(first: np.ndarray, second: np.ndarray) -> bool:
 
 
 class UndoHistory:
-    """Gains to undo and redo; the live steps of a gesture make one step together."""
+    """Gains to undo and redo; the live steps of a gesture make one step together.
 
-    def __init__(self):
-        self._back: list[np.ndarray] = []
-        self._forward: list[np.ndarray] = []
-        self._gesture_start: np.ndarray | None = None
+    The values are K arrays by default; a caller that undoes more than K (the workbench
+    also undoes the estimator gain L) passes its own ``same`` and ``copy`` for its values.
+    """
+
+    def __init__(self, same=None, copy=None):
+        self._same = same or (lambda first, second: np.array_equal(first, second))
+        self._copy = copy or (lambda value: np.array(value, copy=True))
+        self._back: list = []
+        self._forward: list = []
+        self._gesture_start = None
 
     @property
     def undo_depth(self) -> int:
@@ -43,14 +49,14 @@ class UndoHistory:
     def live_step(self, before: np.ndarray) -> None:
         """A live step of a gesture from ``before`` (only the gesture's first step is remembered)."""
         if self._gesture_start is None:
-            self._gesture_start = np.array(before, copy=True)
+            self._gesture_start = self._copy(before)
 
     def accepted(self, before: np.ndarray, after: np.ndarray) -> None:
         """An accepted change (or the end of a gesture) from ``before`` to ``after``: one undo step."""
         start = self._gesture_start if self._gesture_start is not None else before
         self._gesture_start = None
-        if not np.array_equal(start, after):
-            self._back.append(np.array(start, copy=True))
+        if not self._same(start, after):
+            self._back.append(self._copy(start))
             self._forward.clear()
 
     def cancel_gesture(self) -> None:
@@ -61,7 +67,7 @@ class UndoHistory:
         source, target = (self._back, self._forward) if back else (self._forward, self._back)
         if not source:
             return None
-        target.append(np.array(current, copy=True))
+        target.append(self._copy(current))
         self._gesture_start = None
         return source.pop()
 

@@ -19,7 +19,7 @@ from .design_file import plant_to_mapping
 __all__ = ["plant_to_toml"]
 
 #: Order of the tables in a written plant file (as in the bundled plant files).
-_TABLES = ("model", "states", "inputs", "outputs", "disturbance", "specs")
+_TABLES = ("model", "states", "inputs", "outputs", "disturbance", "noise", "specs")
 
 #: TOML escapes for characters that may not appear raw in a basic string.
 _ESCAPES = {"\b": "\\b", "\t": "\\t", "\n": "\\n", "\f": "\\f", "\r": "\\r", '"': '\\"', "\\": "\\\\"}
@@ -71,7 +71,8 @@ def plant_to_toml(plant: core.Plant) -> str:
     -------
     str
         TOML text with the tables ``[model]``, ``[states]``, ``[inputs]``,
-        ``[outputs]``, ``[disturbance]`` and, when the plant has suggested specs, ``[specs]``.
+        ``[outputs]``, ``[disturbance]``, ``[noise]`` when the plant has noise intensities and
+        ``[specs]`` when it has suggested specs.
 
     Raises
     ------

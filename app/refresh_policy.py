@@ -71,7 +71,7 @@ _OPTIONS = {
 }
 
 #: Views redrawn at every level; the others are redrawn from PAUSE on.
-PLOT_VIEWS = frozenset({"pole_map", "response_plots"})
+PLOT_VIEWS = frozenset({"pole_map", "response_plots", "estimator_responses"})
 
 
 def detail_options(detail: Detail) -> DetailOptions:

@@ -107,6 +107,8 @@ class SharedDesign:
         The specs checked.
     notes : str
         The design notes.
+    estimator : EstimatorDesign or None
+        The estimator (form and L), or None for full-state feedback.
     """
 
     plant: core.Plant
@@ -116,6 +118,7 @@ class SharedDesign:
     gain: np.ndarray
     specs: core.DesignSpecs | None
     notes: str = ""
+    estimator: object | None = None
 
     def __post_init__(self):
         gain = np.array(self.plant.check_gain(self.gain), dtype=float, copy=True)
@@ -180,6 +183,8 @@ def describe_change(before: SharedDesign | None, after: SharedDesign) -> str:
         parts.append("changed the specs")
     if after.notes != before.notes:
         parts.append("edited the notes")
+    if after.estimator is not before.estimator:
+        parts.append("removed the estimator" if after.estimator is None else "changed the estimator gain L")
     return "; ".join(parts) or "made no change"
 
 

@@ -17,7 +17,10 @@ The class knows nothing about Panel or Bokeh: the same object serves the
 browser views, the tests and a Python session. Every public method reports
 problems through :attr:`message` and leaves the design as it was; none raises.
 Replacing the whole design (plants, design files, a room's design) lives in
-:mod:`gainboard.app.state_loading`, the LQR comparison in :mod:`gainboard.app.state_lqr`.
+:mod:`gainboard.app.state_loading`, the LQR comparison in :mod:`gainboard.app.state_lqr`,
+the estimator (L, its form, what is edited, estimator-pole drags) in
+:mod:`gainboard.app.state_estimator`. With an estimator the one evaluation call also
+evaluates the compensator (``estimator_evaluation``).
 
 Every accepted change of the design itself (plant, K, specs, notes — not the live
 steps of a drag) counts up :attr:`DesignState.committed` and is recorded in the gain
@@ -42,6 +45,7 @@ from .plant_catalogue import bundled_plant_catalogue, plant_from_reference  # no
 from .pole_drag import targets_after_drag
 from .refresh_policy import Detail, RefreshPolicy, detail_options
 from .state_loading import MAX_NOTES_CHARACTERS, LoadingMixin
+from .state_estimator import EDITING_MODES, EstimatorMixin, same_point
 from .state_lqr import LqrMixin
 
 __all__ = ["DesignState", "MAX_NOTES_CHARACTERS", "plant_from_reference", "bundled_plant_catalogue"]
@@ -49,10 +53,11 @@ __all__ = ["DesignState", "MAX_NOTES_CHARACTERS", "plant_from_reference", "bundl
 log = logging.getLogger(__name__)
 
 #: The inputs an evaluation describes, with the labels that go with the plant.
-_INPUTS = ("plant", "plant_label", "plant_text", "continuous_origin", "gain", "selected_entry", "specs")
+_INPUTS = ("plant", "plant_label", "plant_text", "continuous_origin", "gain", "selected_entry", "specs",
+           "estimator", "editing", "estimator_selected_entry")
 
 
-class DesignState(LoadingMixin, LqrMixin, param.Parameterized):
+class DesignState(LoadingMixin, LqrMixin, EstimatorMixin, param.Parameterized):
     """Everything one workbench session knows about the design being edited.
 
     Set the inputs through the methods (``set_gain``, ``set_entry``, ``drag_pole``,
@@ -88,6 +93,16 @@ class DesignState(LoadingMixin, LqrMixin, param.Parameterized):
     )
     specs = param.ClassSelector(class_=core.DesignSpecs, default=None, allow_None=True,
                                 doc="Design specifications checked and shaded on the pole map.")
+    estimator = param.Parameter(default=None, doc="The estimator (EstimatorDesign: form, L, how it was made), "
+                                                  "or None for full-state feedback.")
+    editing = param.Selector(default="controller", objects=list(EDITING_MODES),
+                             doc="What sliders, pole drags and typed targets change: K or the estimator's L.")
+    estimator_selected_entry = param.Tuple(default=(0, 0), length=2,
+                                           doc="Zero-based (row, column) of the entry of L whose locus is shown.")
+    estimator_evaluation = param.Parameter(default=None, constant=True,
+                                           doc="The core's evaluation of the compensator shown, or None.")
+    kalman_result = param.Parameter(default=None, constant=True,
+                                    doc="The last Kalman design (error covariance, noise used), or None.")
     evaluation = param.Parameter(default=None, constant=True,
                                  doc="The core's evaluation of the design shown (read only).")
     detail = param.Selector(default=Detail.COMPLETE, objects=list(Detail), constant=True,
@@ -114,7 +129,7 @@ class DesignState(LoadingMixin, LqrMixin, param.Parameterized):
 
     def __init__(self, plant: core.Plant, *, plant_label: str = "", plant_text: str = "", gain=None,
                  refresh: RefreshPolicy | None = None, runner=None, **params):
-        self.history = UndoHistory()
+        self.history = UndoHistory(same=same_point, copy=lambda point: point)  # points hold copies already
         self.gain_log = GainLog()
         self.refresh = refresh if refresh is not None else RefreshPolicy(texts_at_least_every=0.0)
         self.runner = runner if runner is not None else InlineRunner()
@@ -179,11 +194,16 @@ class DesignState(LoadingMixin, LqrMixin, param.Parameterized):
         shown = self.evaluation
         same_plant = shown is not None and shown.plant is self.plant
         options = self._options(detail, previous=shown.view_ranges if same_plant else None)
+        settings = self.estimator
+        shown_estimator = self.estimator_evaluation if same_plant else None
         request = EvaluationRequest(sequence=self._sequence, plant=self.plant, gain=np.array(self.gain, copy=True),
-                                    options=options, detail=detail, inputs=self._inputs(), refine=refine)
+                                    options=options, detail=detail, inputs=self._inputs(), refine=refine,
+                                    estimator_gain=None if settings is None else np.array(settings.gain, copy=True),
+                                    estimator_options=self._estimator_options(detail, shown_estimator))
         cache, key = self.evaluation_cache, None
         if cache is not None and refine is None:
-            key = (id(self.plant), id(self.specs), self.gain.shape, self.gain.tobytes(), self.selected_entry, detail)
+            key = (id(self.plant), id(self.specs), self.gain.shape, self.gain.tobytes(), self.selected_entry, detail,
+                   id(settings), self.editing, self.estimator_selected_entry)
             found = cache.get(key, self.plant, self.specs)
             if found is not None:
                 self._deliver(request, found, None)
@@ -211,7 +231,12 @@ class DesignState(LoadingMixin, LqrMixin, param.Parameterized):
             return
         self._shown_sequence = request.sequence
         self._shown_inputs = request.inputs
+        compensator = None
+        if isinstance(evaluation, core.ObserverDesignEvaluation):
+            evaluation, compensator = evaluation.design, evaluation.compensator
         with param.edit_constant(self):
+            # the compensator first: views redrawn on a new evaluation find the matching one
+            self.param.update(estimator_evaluation=compensator)
             self.param.update(evaluation=evaluation, detail=request.detail, revision=self.revision + 1)
 
     def _report_failure(self, error: BaseException) -> None:
@@ -293,21 +318,25 @@ class DesignState(LoadingMixin, LqrMixin, param.Parameterized):
         accepted = False
         with self._reporting("use this gain"):
             checked = self.plant.check_gain(gain)
-            before = self.gain.copy()
-            self._set_inputs(self.refresh.step() if live else self.refresh.release(), gain=checked)
-            if live:
-                self.history.live_step(before)
-            else:
-                self.history.accepted(before, checked)
-                self._sync_history_depths()
+            self._change_design({"gain": checked}, live=live, note=note)
             accepted = True
-            if note:
-                self._say(note, "note")
-            else:
-                self.clear_message()
-            if not live:
-                self._commit()
         return accepted
+
+    def _change_design(self, changes: dict, *, live: bool, note: str = "") -> None:
+        """Apply changes of K and/or the estimator as one step of the undo history (raises on failure)."""
+        before = self._point()
+        self._set_inputs(self.refresh.step() if live else self.refresh.release(), **changes)
+        if live:
+            self.history.live_step(before)
+        else:
+            self.history.accepted(before, self._point())
+            self._sync_history_depths()
+        if note:
+            self._say(note, "note")
+        else:
+            self.clear_message()
+        if not live:
+            self._commit()
 
     def set_entry(self, row: int, col: int, value: float, *, live: bool = False) -> bool:
         """Set one entry k[row, col] (zero-based) and keep the others."""
@@ -326,7 +355,8 @@ class DesignState(LoadingMixin, LqrMixin, param.Parameterized):
     def end_gesture(self) -> None:
         """Close a live gesture (slider or drag release) so it becomes one undo step."""
         if self.history.in_gesture:
-            self.set_gain(self.gain)
+            with self._reporting("finish the change"):
+                self._change_design({}, live=False)
 
     def set_gain_text(self, text: str) -> bool:
         """Set K from text such as ``[[199, 55, 8]]`` (JSON rows, as the K readout shows)."""
@@ -345,12 +375,15 @@ class DesignState(LoadingMixin, LqrMixin, param.Parameterized):
 
     def _history_step(self, *, back: bool) -> bool:
         """One undo (``back``) or redo step; False when there is none."""
-        target = self.history.step(self.gain, back=back)
+        target = self.history.step(self._point(), back=back)
         if target is None:
             return False
         with self._reporting("undo" if back else "redo"):
             try:
-                self._set_inputs(self.refresh.release(), gain=target)
+                changes = {"gain": target.gain, "estimator": target.estimator}
+                if target.estimator is None and self.editing == "estimator":
+                    changes["editing"] = "controller"
+                self._set_inputs(self.refresh.release(), **changes)
             except BaseException:
                 self.history.revert_step(back=back)
                 raise
@@ -395,7 +428,10 @@ class DesignState(LoadingMixin, LqrMixin, param.Parameterized):
     # -- pole dragging -----------------------------------------------------------------------
 
     def begin_drag(self, index: int) -> bool:
-        """Start dragging closed-loop pole ``index`` (as ordered in ``evaluation.closed_loop.poles``)."""
+        """Start dragging closed-loop pole ``index`` (as ordered in ``evaluation.closed_loop.poles``);
+        editing the estimator, estimator pole ``index`` (in ``estimator_evaluation.estimator_poles.poles``)."""
+        if self.editing == "estimator":
+            return self._begin_estimator_drag(index)
         poles = tuple(self.evaluation.closed_loop.poles)
         if not 0 <= index < len(poles):
             return False
@@ -437,6 +473,12 @@ class DesignState(LoadingMixin, LqrMixin, param.Parameterized):
         if not live:
             self._drag = None  # the release ends the drag whatever happens next
         accepted = False
+        if drag.get("kind") == "estimator":
+            with self._reporting("place the estimator poles there"):
+                accepted = self._drag_estimator_pole(drag, target, live=live, snap_distance=snap_distance)
+            if not live:
+                self.end_gesture()
+            return accepted
         with self._reporting("place the poles there"):
             request = targets_after_drag(
                 drag["poles"], drag["index"], target, snap_distance=snap_distance, movable=drag["movable"]
@@ -465,7 +507,9 @@ class DesignState(LoadingMixin, LqrMixin, param.Parameterized):
         return self.evaluation.closed_loop_movable
 
     def place_poles(self, targets) -> bool:
-        """Compute K by pole assignment for a full list of target poles (typed in)."""
+        """Compute K by pole assignment for a full list of target poles (typed in); L when editing the estimator."""
+        if self.editing == "estimator":
+            return self.place_estimator_poles(targets)
         with self._reporting("place the poles there"):
             placement = core.assign_poles(self.plant, list(targets))
             return self._apply_placement(placement, live=False, note="")

@@ -42,8 +42,13 @@ class LoadingMixin:
         from .plant_text import plant_to_toml
 
         state = cls(design.plant, plant_label=label, plant_text=plant_to_toml(design.plant), gain=design.gain)
+        changes = {}
         if design.effective_specs is not state.specs:
-            state._set_inputs(specs=design.effective_specs)  # complete, as every change outside a gesture
+            changes["specs"] = design.effective_specs
+        if design.estimator is not None:
+            changes["estimator"] = design.estimator
+        if changes:
+            state._set_inputs(**changes)  # complete, as every change outside a gesture
         state.notes = design.notes
         state._created = design.created
         if design.gain_history:
@@ -56,7 +61,7 @@ class LoadingMixin:
     def _replace_plant(self, plant: core.Plant, label: str, text: str, *,
                        continuous_origin: core.Plant | None = None, note: str = "", gain=None,
                        specs="plant", notes: str | None = None, history: tuple | None = None,
-                       created: str | None = None, reference_gains=None) -> None:
+                       created: str | None = None, reference_gains=None, estimator=None) -> None:
         """Make ``plant`` current with ``gain`` (default: the starting gain) and ``specs`` (default: the plant's)."""
         if gain is None:
             gain, start_note = self._starting_gain(plant)
@@ -64,9 +69,11 @@ class LoadingMixin:
             gain, start_note = plant.check_gain(gain), ""
         specs = plant.specs if isinstance(specs, str) else specs
         # the labels change with the plant (and go back with it if its evaluation fails)
+        # a new plant starts without an estimator unless the design brings one (an L fits one plant only)
         self._set_inputs(self.refresh.release(), plant_label=label, plant_text=text,
                          continuous_origin=continuous_origin, plant=plant, gain=gain, selected_entry=(0, 0),
-                         specs=specs)
+                         specs=specs, estimator=estimator, estimator_selected_entry=(0, 0),
+                         editing="controller" if estimator is None else self.editing)
         if notes is not None:
             self.notes = notes
         if created is not None:
@@ -153,7 +160,7 @@ class LoadingMixin:
         if self._reference_gains is not None:
             prefilter, integral, _ = self._reference_gains
         return Design(
-            plant=self.plant, gain=self.gain, prefilter=prefilter, integral_gain=integral,
+            plant=self.plant, gain=self.gain, prefilter=prefilter, integral_gain=integral, estimator=self.estimator,
             specs=None if specs is self.plant.specs else specs, notes=self.notes,
             gain_history=self.gain_log.entries, created=self._created, modified=self.gain_log.modified,
         )
@@ -182,7 +189,7 @@ class LoadingMixin:
             self._replace_plant(
                 design.plant, label, plant_to_toml(design.plant), gain=design.gain, specs=design.effective_specs,
                 notes=design.notes, history=design.gain_history, created=design.created,
-                reference_gains=_reference_gains(design),
+                reference_gains=_reference_gains(design), estimator=design.estimator,
                 note=f"Opened {label}.",
             )
             return True
@@ -212,7 +219,7 @@ class LoadingMixin:
 
         return SharedDesign(plant=self.plant, plant_label=self.plant_label, plant_text=self.plant_text,
                             continuous_origin=self.continuous_origin, gain=self.gain, specs=self.specs,
-                            notes=self.notes)
+                            notes=self.notes, estimator=self.estimator)
 
     def adopt_shared(self, shared, note: str = "") -> bool:
         """Show a design another member of a live room published (one undo step when only K changed).
@@ -224,7 +231,7 @@ class LoadingMixin:
             if shared.plant is not self.plant:
                 self._replace_plant(
                     shared.plant, shared.plant_label, shared.plant_text, continuous_origin=shared.continuous_origin,
-                    gain=shared.gain, specs=shared.specs, notes=shared.notes, note=note,
+                    gain=shared.gain, specs=shared.specs, notes=shared.notes, note=note, estimator=shared.estimator,
                 )
                 return True
             changes = {}
@@ -233,12 +240,17 @@ class LoadingMixin:
                 changes["gain"] = np.array(shared.gain, dtype=float, copy=True)
             if shared.specs is not self.specs:
                 changes["specs"] = shared.specs
+            before_point = self._point()
+            if shared.estimator is not self.estimator:
+                changes["estimator"] = shared.estimator
+                if shared.estimator is None and self.editing == "estimator":
+                    changes["editing"] = "controller"
             if changes:
                 self._drag = None
                 self.history.cancel_gesture()
                 self._set_inputs(self.refresh.release(), **changes)
-                if "gain" in changes:
-                    self.history.accepted(before, changes["gain"])
+                if "gain" in changes or "estimator" in changes:
+                    self.history.accepted(before_point, self._point())
                     self._sync_history_depths()
             notes_changed = shared.notes != self.notes
             if notes_changed:

@@ -23,6 +23,7 @@ __all__ = [
     "format_gain_text",
     "trace_colour",
     "entry_symbol",
+    "estimator_entry_symbol",
 ]
 
 PALETTE = {
@@ -33,6 +34,7 @@ PALETTE = {
     "muted": "#5d6b78",
     "accent": "#2f6f8f",
     "closed_loop": "#0b7a75",
+    "estimator": "#c0392b",
     "open_loop": "#8a94a0",
     "pinned": "#8f6bb5",
     "lqr": "#b7791f",
@@ -64,6 +66,7 @@ MARKERS = {
     "open_loop": {"marker": "x", "size": 11, "line_width": 1.6},
     "pinned": {"marker": "x", "size": 14, "line_width": 2.2},
     "lqr": {"marker": "x", "size": 12, "line_width": 2.0},
+    "estimator": {"marker": "diamond", "size": 15, "line_width": 2.0},
     "zero": {"marker": "circle", "size": 11, "line_width": 1.8},
     "fixed_frame": {"marker": "square", "size": 24, "line_width": 1.6},
 }
@@ -131,6 +134,17 @@ def entry_symbol(row: int, col: int) -> str:
     if row < 9 and col < 9:
         return f"k{str(row + 1).translate(subscripts)}{str(col + 1).translate(subscripts)}"
     return f"k[{row + 1},{col + 1}]"
+
+
+def estimator_entry_symbol(row: int, col: int) -> str:
+    """The name of estimator gain entry (row, col), counted from 1: ``l₂₁``.
+
+    Examples
+    --------
+    >>> estimator_entry_symbol(1, 0)
+    'l₂₁'
+    """
+    return "l" + entry_symbol(row, col)[1:]
 
 
 def trace_colour(index: int) -> str:

@@ -37,8 +37,13 @@ from .scheduling import LatestOnly
 from .snapshot import SNAPSHOT_PARAMETER, design_from_snapshot, snapshot_url
 from .state import DesignState
 from .theme import PAGE_CSS, PALETTE, TABLE_CSS, format_gain_text
+from .views.compensator_checks import CompensatorChecks
 from .views.design_bar import DesignBar
+from .views.edit_mode import EditMode
 from .views.entry_choice import EntryChoice
+from .views.estimator_panel import EstimatorPanel
+from .views.estimator_responses import EstimatorResponses
+from .views.estimator_sliders import EstimatorSliders
 from .views.file_panel import FilePanel
 from .views.gain_sliders import GainSliders
 from .views.keyboard import TabKeys
@@ -120,6 +125,10 @@ class Workbench:
         self.checks = ChecksTable(state)
         self.plant_panel = PlantPanel(state)
         self.lqr_panel = LqrPanel(state)
+        self.edit_mode = EditMode(state)
+        self.estimator_panel = EstimatorPanel(state, EstimatorSliders(state, self.scheduler))
+        self.estimator_responses = EstimatorResponses(state)
+        self.compensator_checks = CompensatorChecks(state)
         self.file_panel = FilePanel(state, report_error=lambda text: state.show_message(text, "error"))
         self.share_panel = SharePanel(on_join=self.join_room, on_leave=self.leave_room,
                                       on_rename=self.room_link.rename, make_snapshot_link=self.make_snapshot_link)
@@ -136,6 +145,10 @@ class Workbench:
             "checks": self.checks.refresh,
             "plant_panel": self.plant_panel.refresh,
             "lqr_panel": self.lqr_panel.refresh,
+            "edit_mode": self.edit_mode.refresh,
+            "estimator_panel": self.estimator_panel.refresh,
+            "estimator_responses": self.estimator_responses.refresh,
+            "compensator_checks": self.compensator_checks.refresh,
             "file_panel": self.file_panel.refresh,
             "header": lambda evaluation: self.page_header.refresh(evaluation, self.room_link.header_html()),
         }
@@ -189,19 +202,21 @@ class Workbench:
             ("Gains", gains),
             ("Plant", scrolling(self.plant_panel.panel, 370)),
             ("LQR", scrolling(self.lqr_panel.panel, 370)),
+            ("Estimator", scrolling(self.estimator_panel.panel, 370)),
             ("File", scrolling(self.file_panel.panel, 370)),
             ("Share", scrolling(self.share_panel.panel, 370)),
             width=375, margin=(0, 5), dynamic=False,
         )
         centre = pn.Column(
+            self.edit_mode.panel,
             self.entry_choice.panel,
             self.pole_map.panel,
             self.design_bar.target_row,
             margin=(0, 5), width=470,
         )
         right = pn.Tabs(
-            ("Responses", scrolling(self.responses.panel, 478)),
-            ("Checks", scrolling(self.checks.panel, 478)),
+            ("Responses", scrolling(pn.Column(self.responses.panel, self.estimator_responses.panel, margin=0), 478)),
+            ("Checks", scrolling(pn.Column(self.compensator_checks.panel, self.checks.panel, margin=0), 478)),
             ("Poles", scrolling(self.pole_table.panel, 478)),
             ("Robust", scrolling(self.robust_panel.panel, 478)),
             width=480, margin=(0, 5), dynamic=False,

@@ -21,6 +21,15 @@ from ._integral_action import *  # noqa: F401,F403
 from ._sampling_check import *  # noqa: F401,F403
 from ._view_ranges import *  # noqa: F401,F403
 from ._design_evaluation import *  # noqa: F401,F403
+from ._noise import *  # noqa: F401,F403
+from ._observability import *  # noqa: F401,F403
+from ._reduced_estimator import *  # noqa: F401,F403
+from ._estimator import *  # noqa: F401,F403
+from ._kalman import *  # noqa: F401,F403
+from ._compensator import *  # noqa: F401,F403
+from ._compensator_responses import *  # noqa: F401,F403
+from ._compensator_evaluation import *  # noqa: F401,F403
+from ._compensator_sampling import *  # noqa: F401,F403
 from ._expressions import *  # noqa: F401,F403
 from ._plant_family import *  # noqa: F401,F403
 from ._robustness import *  # noqa: F401,F403

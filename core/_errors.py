@@ -10,6 +10,7 @@ __all__ = [
     "GainError",
     "PlacementError",
     "AnalysisError",
+    "EstimatorError",
 ]
 
 
@@ -31,3 +32,7 @@ class PlacementError(GainboardError):
 
 class AnalysisError(GainboardError):
     """An analysis cannot be carried out for this design (singular DC gain, bad weights, ...)."""
+
+
+class EstimatorError(GainboardError, ValueError):
+    """An estimator gain L, its noise intensities or its settings are malformed or cannot be met."""

@@ -14,6 +14,7 @@ import scipy.linalg
 
 from ._arrays import read_only
 from ._errors import PlantError
+from ._noise import NoiseIntensities, sampled_noise_intensities
 
 __all__ = [
     "Plant",
@@ -175,6 +176,9 @@ class Plant:
         Size of the step applied on each disturbance channel in the disturbance response.
     specs : object, optional
         Suggested design specifications (a :class:`gainboard.core.DesignSpecs`).
+    noise : NoiseIntensities, optional
+        Process- and measurement-noise intensities (covariances for a sampled plant)
+        for estimator design; see :mod:`gainboard.core._noise`.
 
     Examples
     --------
@@ -205,6 +209,7 @@ class Plant:
     disturbance_units: tuple[str, ...] | None = None
     disturbance_step: tuple[float, ...] | None = None
     specs: object | None = field(default=None)
+    noise: NoiseIntensities | None = None
 
     def __post_init__(self):
         set_ = lambda key, value: object.__setattr__(self, key, value)  # noqa: E731
@@ -284,6 +289,15 @@ class Plant:
         if len(step) != q or not all(math.isfinite(v) for v in step):
             raise PlantError(f"the disturbance step must give {q} finite numbers, one per disturbance channel, got {step!r}")
         set_("disturbance_step", step)
+
+        if self.noise is not None:
+            if not isinstance(self.noise, NoiseIntensities):
+                raise PlantError(f"noise must be NoiseIntensities (see noise_intensities), got {type(self.noise).__name__}")
+            if self.noise.state_count != n or self.noise.output_count != p:
+                raise PlantError(
+                    f"the noise intensities are for {self.noise.state_count} states and {self.noise.output_count} "
+                    f"outputs, but the plant has {n} states and {p} outputs; give W as {n}×{n} and V as {p}×{p}"
+                )
 
     # -- sizes -------------------------------------------------------------
     @property
@@ -383,7 +397,8 @@ def discretize_zero_order_hold(plant: Plant, sample_time: float) -> Plant:
 
     Uses the block-matrix exponential exp([[A, B], [0, 0]] T) = [[Φ, Γ], [0, I]],
     which is exact for inputs held constant over each period (Van Loan's method).
-    C and D are unchanged, the disturbance matrix is sampled the same way.
+    C and D are unchanged, the disturbance matrix is sampled the same way, and
+    noise intensities become covariances per sample (:func:`sampled_noise_intensities`).
 
     Parameters
     ----------
@@ -429,5 +444,6 @@ def discretize_zero_order_hold(plant: Plant, sample_time: float) -> Plant:
         B=Gamma[:, :m],
         disturbance_matrix=Gamma[:, m:] if explicit_disturbance else None,
         sample_time=float(sample_time),
+        noise=None if plant.noise is None else sampled_noise_intensities(plant.noise, plant.A, float(sample_time)),
         name=f"{plant.name} (ZOH, T = {sample_time:g} s)",
     )

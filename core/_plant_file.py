@@ -9,7 +9,8 @@ from __future__ import annotations
 import tomllib
 from pathlib import Path
 
-from ._errors import PlantError
+from ._errors import EstimatorError, PlantError
+from ._noise import noise_intensities
 from ._plant import Plant
 from ._specs import DesignSpecs
 
@@ -18,13 +19,15 @@ __all__ = ["load_plant_file", "parse_plant_text", "plant_from_mapping", "specs_f
 #: Largest plant file accepted, in bytes: a plant of 50 states is a few kB.
 MAX_PLANT_FILE_BYTES = 2_000_000
 
-_TOP_LEVEL_KEYS = {"name", "summary", "description", "model", "states", "inputs", "outputs", "disturbance", "specs"}
+_TOP_LEVEL_KEYS = {"name", "summary", "description", "model", "states", "inputs", "outputs", "disturbance", "specs",
+                   "noise"}
 _SECTION_KEYS = {
     "model": {"A", "B", "C", "D", "sample_time"},
     "states": {"names", "units", "initial"},
     "inputs": {"names", "units", "low", "high"},
     "outputs": {"names", "units", "tracked"},
     "disturbance": {"matrix", "names", "units", "step"},
+    "noise": {"process", "measurement"},
 }
 
 
@@ -67,6 +70,17 @@ def specs_from_mapping(data: dict) -> DesignSpecs:
     if unknown:
         raise PlantError(f"[specs] has unknown key(s) {sorted(unknown)}; allowed keys are {sorted(allowed)}")
     return DesignSpecs(**data)
+
+
+def _noise_from_section(section: dict):
+    """[noise]: process (n×n or n variances) and measurement (p×p or p variances), both required."""
+    missing = [key for key in ("process", "measurement") if key not in section]
+    if missing:
+        raise PlantError(f"[noise] needs both process and measurement; {' and '.join(missing)} is missing")
+    try:
+        return noise_intensities(section["process"], section["measurement"], source="plant file")
+    except EstimatorError as error:
+        raise PlantError(f"[noise]: {error}") from None
 
 
 def plant_from_mapping(data: dict, source: str = "plant file") -> Plant:
@@ -138,6 +152,7 @@ def _plant_from_mapping(data: dict) -> Plant:
 
     specs = specs_from_mapping(data["specs"]) if "specs" in data else None
     return Plant(
+        noise=_noise_from_section(_section(data, "noise")) if "noise" in data else None,
         A=model["A"],
         B=model["B"],
         C=model.get("C"),

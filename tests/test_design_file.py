@@ -271,7 +271,7 @@ def test_design_arrays_are_read_only_copies():
 @pytest.mark.parametrize(
     ("change", "message"),
     [
-        ({"version": 2}, r"version 2 is not known; this gainboard reads version 1\. It was written by a newer"),
+        ({"version": 3}, r"version 3 is not known; this gainboard reads versions 1, 2\. It was written by a newer"),
         ({"version": 0}, r"version 0 is not known"),
         ({"version": "1"}, r"\"version\" must be a whole number, found '1'"),
         ({"version": True}, r"\"version\" must be a whole number"),
@@ -313,8 +313,8 @@ def test_missing_required_keys_are_named(missing):
 
 def test_version_and_format_are_written_first():
     text = design_to_json(Design(plant=THIRD_ORDER, gain=OGATA_GAIN))
-    assert text.startswith('{\n  "format": "gainboard-design",\n  "version": 1,')
-    assert DESIGN_FORMAT_VERSION == 1
+    assert text.startswith('{\n  "format": "gainboard-design",\n  "version": 2,')
+    assert DESIGN_FORMAT_VERSION == 2
 
 
 @pytest.mark.parametrize(

@@ -83,7 +83,15 @@ class DesignBar:
 
     def refresh(self, evaluation) -> None:
         self.gain_text.value = format_gain_text(evaluation.gain)
+        compensator = self.state.estimator_evaluation
+        editing_estimator = self.state.editing == "estimator" and compensator is not None
+        # the typed targets place the poles of the gain being edited
+        label = ("Estimator poles (typed; they set L)" if editing_estimator
+                 else "Target poles (keyboard alternative to dragging)")
+        if self.targets.label != label:
+            self.targets.label = label
+        poles = compensator.estimator_poles.poles if editing_estimator else evaluation.closed_loop.poles
         if not self.targets.value:
             self.targets.placeholder = ", ".join(format_complex(p, 4).replace("−", "-").replace(" ", "")
-                                                 for p in evaluation.closed_loop.poles)
+                                                 for p in poles)
         self.refresh_buttons()

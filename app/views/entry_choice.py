@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import panel as pn
 
-from ..theme import TABLE_CSS, entry_symbol
+from ..theme import TABLE_CSS, entry_symbol, estimator_entry_symbol
 
 __all__ = ["EntryChoice"]
 
@@ -33,9 +33,18 @@ class EntryChoice:
 
     def refresh(self, evaluation) -> None:
         plant = evaluation.plant
-        options = {f"{entry_symbol(i, j)}: {plant.input_names[i]} ← {plant.state_names[j]}": f"{i},{j}"
-                   for i in range(plant.input_count) for j in range(plant.state_count)}
-        selected = evaluation.selected_entry
+        compensator = self.state.estimator_evaluation
+        if self.state.editing == "estimator" and compensator is not None:
+            # editing L: the loci of its entries (rows: estimated states, columns: outputs)
+            rows, cols = compensator.estimator_gain.shape
+            names = compensator.gain_row_names
+            options = {f"{estimator_entry_symbol(i, j)}: {names[i]} ← {plant.output_names[j]}": f"{i},{j}"
+                       for i in range(rows) for j in range(cols)}
+            selected = compensator.selected_entry
+        else:
+            options = {f"{entry_symbol(i, j)}: {plant.input_names[i]} ← {plant.state_names[j]}": f"{i},{j}"
+                       for i in range(plant.input_count) for j in range(plant.state_count)}
+            selected = evaluation.selected_entry
         self._syncing = True
         try:
             if self.choice.options != options:
@@ -50,4 +59,7 @@ class EntryChoice:
         if self._syncing or not event.new:
             return
         row, col = (int(v) for v in event.new.split(","))
-        self.state.select_entry(row, col)
+        if self.state.editing == "estimator" and self.state.estimator_evaluation is not None:
+            self.state.select_estimator_entry(row, col)
+        else:
+            self.state.select_entry(row, col)

@@ -72,6 +72,9 @@ class FilePanel:
                                                 css_classes=["gb-open-design"])
         self.export_format = pn.widgets.Select(label="Format for the controller", options=EXPORT_CHOICES,
                                                width=WIDTH - 10, margin=(2, 5), css_classes=["gb-export-format"])
+        self.export_period = pn.widgets.FloatInput(
+            label="Controller period T (s), to export a continuous design's compensator", value=0.001, start=0.0,
+            width=WIDTH - 10, margin=(2, 5), css_classes=["gb-export-period"])
         self.download_export = pn.widgets.FileDownload(
             callback=self._export, filename="gains.h", label="Download K", embed=False, width=WIDTH - 10,
             margin=(4, 5), css_classes=["gb-download-export"],
@@ -103,8 +106,9 @@ class FilePanel:
             self.download_design,
             small(f"Open a design file (JSON, at most {MAX_DESIGN_FILE_BYTES // 1_000_000} MB):"),
             self.open_design,
-            heading("K for the controller"),
+            heading("the controller (K; with an estimator, the compensator)"),
             self.export_format,
+            self.export_period,
             self.download_export,
             small("Every export names the state and input order, units, sample time and the control law, "
                   "and carries the caution above: validate K on the real system before relying on it."),
@@ -135,7 +139,11 @@ class FilePanel:
 
     def _export(self):
         chosen = self.export_format.value
-        return self._produce("export K", lambda: export_design(self.state.design(), chosen))
+        # a compensator of a continuous design runs at the controller's period (the file says how it was sampled)
+        period = (float(self.export_period.value) if self.state.estimator is not None and not self.state.plant.is_sampled
+                  and chosen in ("c", "json", "python") else None)
+        return self._produce("export the controller", lambda: export_design(self.state.design(), chosen,
+                                                                          sample_time=period))
 
     def _report(self):
         return self._produce("write the design report", lambda: export_design(self.state.design(), "html"))
@@ -159,6 +167,7 @@ class FilePanel:
             self.notes.value = self.state.notes
 
     def refresh(self, evaluation) -> None:
+        self.export_period.visible = self.state.estimator is not None and not evaluation.plant.is_sampled
         self._refresh_filenames()
         self._show_notes()
 

@@ -19,7 +19,7 @@ from ..scheduling import guarded
 from ..theme import PALETTE, entry_symbol, format_number
 from .html_box import HtmlBox
 
-__all__ = ["GainSliders", "PromptSlider", "entry_units"]
+__all__ = ["GainSliders", "PromptSlider", "EntryActions", "entry_units"]
 
 SLIDER_WIDTH = 320
 STRIP_HEIGHT = 10
@@ -102,7 +102,55 @@ def interval_strip_svg(low: float, high: float, value: float, intervals, width: 
     )
 
 
-class _EntryControls:
+class EntryActions:
+    """What the slider and the number box of one entry do: set state, nothing else.
+
+    Subclasses give ``owner`` (with ``state``, ``scheduler`` and ``syncing``), ``symbol``,
+    ``key`` (the latest-only scheduling key) and ``apply(value, live)``.
+    """
+
+    def _connect(self, select) -> None:
+        """Watch the slider and the number box; the locus button calls ``select()``."""
+        guard = guarded(lambda text: self.owner.state.show_message(text, "error"))
+        self.slider.param.watch(guard(self._slider_moved), "value")
+        self.slider.param.watch(guard(self._slider_released), "value_throttled")
+        self.number.param.watch(guard(self._typed), "value")
+        self.locus_button.on_click(lambda event: select())
+
+    def _show_value(self, value: float, slider_range, selected: bool) -> None:
+        """The number box, the slider (range and position) and the locus button for ``value``."""
+        if self.number.value is None or float(self.number.value) != value:
+            self.number.value = value
+        low, high = slider_range.low, slider_range.high
+        if self.slider.start != low or self.slider.end != high:
+            self.slider.param.update(start=low, end=high, step=slider_range.step)
+        if float(self.slider.value) != value:
+            self.slider.value = min(max(value, low), high)
+        self.locus_button.color = "primary" if selected else "light"
+
+    def _slider_moved(self, event) -> None:
+        if self.owner.syncing:
+            return
+        value = float(event.new)
+        self.owner.scheduler.submit(self.key, lambda: self.apply(value, live=True))
+
+    def _slider_released(self, event) -> None:
+        if self.owner.syncing or event.new is None:
+            return
+        self.owner.scheduler.discard(self.key)
+        self.apply(float(event.new))
+
+    def _typed(self, event) -> None:
+        if self.owner.syncing or event.new is None:
+            return
+        value = float(event.new)
+        if not math.isfinite(value):
+            self.owner.state.show_message(f"{self.symbol} must be a finite number.", "error")
+            return
+        self.apply(value)
+
+
+class _EntryControls(EntryActions):
     """Widgets of one gain entry."""
 
     def __init__(self, owner: "GainSliders", row: int, col: int):
@@ -133,35 +181,16 @@ class _EntryControls:
             margin=(2, 0, 6, 0),
             css_classes=["gb-entry"],
         )
-        guard = guarded(lambda text: owner.state.show_message(text, "error"))
-        self.slider.param.watch(guard(self._slider_moved), "value")
-        self.slider.param.watch(guard(self._slider_released), "value_throttled")
-        self.number.param.watch(guard(self._typed), "value")
-        self.locus_button.on_click(lambda event: owner.state.select_entry(row, col))
+        self._connect(lambda: owner.state.select_entry(row, col))
 
-    # user actions: only ever set state
+    # user actions: only ever set state (see EntryActions)
 
-    def _slider_moved(self, event) -> None:
-        if self.owner.syncing:
-            return
-        value = float(event.new)
-        self.owner.scheduler.submit(("entry", self.row, self.col),
-                                    lambda: self.owner.state.set_entry(self.row, self.col, value, live=True))
+    @property
+    def key(self):
+        return ("entry", self.row, self.col)
 
-    def _slider_released(self, event) -> None:
-        if self.owner.syncing or event.new is None:
-            return
-        self.owner.scheduler.discard(("entry", self.row, self.col))
-        self.owner.state.set_entry(self.row, self.col, float(event.new))
-
-    def _typed(self, event) -> None:
-        if self.owner.syncing or event.new is None:
-            return
-        value = float(event.new)
-        if not math.isfinite(value):
-            self.owner.state.show_message(f"{self.symbol} must be a finite number.", "error")
-            return
-        self.owner.state.set_entry(self.row, self.col, value)
+    def apply(self, value: float, live: bool = False) -> None:
+        self.owner.state.set_entry(self.row, self.col, value, live=live)
 
     # refreshing from an evaluation
 
@@ -176,14 +205,8 @@ class _EntryControls:
             + (f'<br><span class="gb-units">{escape(units)}</span>' if units else "")
             + "</div>"
         )
-        if self.number.value is None or float(self.number.value) != value:
-            self.number.value = value
+        self._show_value(value, slider_range, selected)
         low, high = slider_range.low, slider_range.high
-        if self.slider.start != low or self.slider.end != high:
-            self.slider.param.update(start=low, end=high, step=slider_range.step)
-        if float(self.slider.value) != value:
-            self.slider.value = min(max(value, low), high)
-        self.locus_button.color = "primary" if selected else "light"
         text = _interval_text(self.symbol, intervals, high - low)
         badge = ""
         if intervals is not None:

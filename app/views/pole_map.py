@@ -4,8 +4,10 @@ Layers, bottom to top: the unstable region (blush), the spec region (mint),
 the selected entry's locus graded from sand (low gain) to plum (high gain), the
 sensitivity arrows (which way each pole moves as the entry grows), open-loop
 poles (small grey ×), pinned and LQR comparison poles (violet and ochre ×),
-frames around poles no gain can move, and the closed-loop poles (large teal ×)
-that can be dragged.
+frames around poles no gain can move, the closed-loop poles (large teal ×)
+and, with an estimator, its error poles (red ◆). Editing K, the closed-loop poles
+are dragged; editing the estimator gain L, the estimator poles are, and the locus
+is that of the selected entry of L.
 
 Dragging: the point-drag tool moves the marker in the browser and reports the
 final position on release; pan events stream the pointer to the server while
@@ -37,7 +39,7 @@ from bokeh.models import (
 from bokeh.plotting import figure
 
 from ..scheduling import guarded
-from ..theme import LOCUS_RAMP, MARKERS, PALETTE, entry_symbol, format_complex, format_number
+from ..theme import LOCUS_RAMP, MARKERS, PALETTE, entry_symbol, estimator_entry_symbol, format_complex, format_number
 from .data_sources import update_source
 from .html_box import HtmlBox
 
@@ -92,6 +94,9 @@ class PoleMap:
         self.closed_source = ColumnDataSource(
             {"x": [], "y": [], "label": [], "zeta": [], "wn": [], "tau": [], "movable": []}, name="closed_loop_poles"
         )
+        self.estimator_source = ColumnDataSource(
+            {"x": [], "y": [], "label": [], "zeta": [], "wn": [], "tau": [], "movable": []}, name="estimator_poles"
+        )
         self.color_mapper = LinearColorMapper(palette=list(LOCUS_RAMP), low=0.0, high=1.0)
 
         self.figure = self._build_figure()
@@ -100,6 +105,7 @@ class PoleMap:
         self.figure.on_event(Pan, guard(self._on_pan))
         self.figure.on_event(PanEnd, guard(self._on_pan_end))
         self.closed_source.on_change("data", guard(self._on_pole_data))
+        self.estimator_source.on_change("data", guard(self._on_pole_data))
 
         self.legend = HtmlBox(css=_legend_css(), width=FRAME_WIDTH + 60)
         self.panel = pn.Column(
@@ -159,11 +165,17 @@ class PoleMap:
                                            **MARKERS["closed_loop"])
         self.closed_renderer.selection_glyph = None
         self.closed_renderer.nonselection_glyph = None
+        self.estimator_renderer = fig.scatter("x", "y", source=self.estimator_source, fill_alpha=0.25,
+                                              fill_color=PALETTE["estimator"], line_color=PALETTE["estimator"],
+                                              **MARKERS["estimator"])
+        self.estimator_renderer.selection_glyph = None
+        self.estimator_renderer.nonselection_glyph = None
 
         draw = PointDrawTool(renderers=[self.closed_renderer], add=False, drag=True,
                              description="Drag a closed-loop pole to a target")
+        self.draw_tool = draw
         hover = HoverTool(
-            renderers=[self.closed_renderer],
+            renderers=[self.closed_renderer, self.estimator_renderer],
             tooltips=[("pole", "@label"), ("damping ratio", "@zeta"), ("natural frequency", "@wn"),
                       ("time constant", "@tau"), ("", "@movable")],
             description="Pole details",
@@ -194,10 +206,15 @@ class PoleMap:
         self._refresh_locus(evaluation)
         self._refresh_arrows(evaluation)
         self._refresh_ghosts()
+        editing_estimator = self.state.editing == "estimator" and self.state.estimator_evaluation is not None
+        renderer = self.estimator_renderer if editing_estimator else self.closed_renderer
+        if self.draw_tool.renderers != [renderer]:
+            self.draw_tool.renderers = [renderer]
         if self.state.dragging:
             self._preview_partner()
         else:
             self._set_closed_poles(evaluation)
+            self._set_estimator_poles()
         self._refresh_legend(evaluation)
 
     def refresh_comparisons(self, evaluation) -> None:
@@ -228,19 +245,13 @@ class PoleMap:
     def _set_closed_poles(self, evaluation) -> None:
         report = evaluation.closed_loop
         movable = self.state.closed_loop_movable()
-        labels, zetas, frequencies, taus, notes = [], [], [], [], []
-        for description, can_move in zip(report.descriptions, movable):
-            labels.append(format_complex(description.value))
-            zetas.append(format_number(description.damping_ratio, 3))
-            frequencies.append(format_number(description.natural_frequency, 4) + " rad/s")
-            taus.append(format_number(description.time_constant, 4) + " s")
-            notes.append("drag to move" if can_move else "cannot move: uncontrollable")
+        rows = _hover_rows(report.descriptions, movable, "", "drag to move", "cannot move: uncontrollable")
         x, y = _xy(report.poles)
-        self._shown_poles = [complex(a, b) for a, b in zip(x, y)]
+        if self.state.editing != "estimator" or self.state.estimator_evaluation is None:
+            self._shown_poles = [complex(a, b) for a, b in zip(x, y)]
         self._setting_poles = True
         try:
-            update_source(self.closed_source, {"x": x, "y": y, "label": labels, "zeta": zetas,
-                                               "wn": frequencies, "tau": taus, "movable": notes})
+            update_source(self.closed_source, {"x": x, "y": y, **rows})
             self.closed_source.selected.indices = []
         finally:
             self._setting_poles = False
@@ -248,21 +259,45 @@ class PoleMap:
         fy = [b for b, can_move in zip(y, movable) if not can_move]
         update_source(self.fixed_source, {"x": fx, "y": fy})
 
+    def _set_estimator_poles(self) -> None:
+        """The estimator's error poles (◆); while L is edited they are the ones dragged."""
+        compensator = self.state.estimator_evaluation
+        if compensator is None:
+            self._setting_poles = True
+            try:
+                update_source(self.estimator_source, {key: [] for key in self.estimator_source.data})
+            finally:
+                self._setting_poles = False
+            return
+        report = compensator.estimator_poles
+        rows = _hover_rows(report.descriptions, compensator.estimator_pole_movable, "estimator ",
+                           "drag to move (editing L)", "cannot move: unobservable")
+        x, y = _xy(report.poles)
+        if self.state.editing == "estimator":
+            self._shown_poles = [complex(a, b) for a, b in zip(x, y)]
+        self._setting_poles = True
+        try:
+            update_source(self.estimator_source, {"x": x, "y": y, **rows})
+            self.estimator_source.selected.indices = []
+        finally:
+            self._setting_poles = False
+
     def _preview_partner(self) -> None:
         """While dragging, move the conjugate partner's marker; the dragged one is the tool's."""
         preview = self.state.drag_preview
         if preview is None:
             return
         index, request = preview
+        source = self._drag_source()
         patches_x, patches_y = [], []
         for moved in request.moved:
-            if moved != index and moved < len(self.closed_source.data["x"]):
+            if moved != index and moved < len(source.data["x"]):
                 patches_x.append((moved, request.targets[moved].real))
                 patches_y.append((moved, request.targets[moved].imag))
         if patches_x:
             self._setting_poles = True
             try:
-                self.closed_source.patch({"x": patches_x, "y": patches_y})
+                source.patch({"x": patches_x, "y": patches_y})
             finally:
                 self._setting_poles = False
 
@@ -270,8 +305,20 @@ class PoleMap:
         outlines = evaluation.view_ranges.region_outline
         update_source(self.region_source, {"xs": [x for x, _ in outlines], "ys": [y for _, y in outlines]})
 
+    def _drag_source(self):
+        """The markers a drag moves: the estimator poles while L is edited, else the closed-loop poles."""
+        if self.state.editing == "estimator" and self.state.estimator_evaluation is not None:
+            return self.estimator_source
+        return self.closed_source
+
+    def _shown_locus(self, evaluation):
+        """The locus drawn: of the selected entry of L while L is edited, else of the selected entry of K."""
+        if self.state.editing == "estimator" and self.state.estimator_evaluation is not None:
+            return self.state.estimator_evaluation.selected_locus
+        return evaluation.selected_locus
+
     def _refresh_locus(self, evaluation) -> None:
-        locus = evaluation.selected_locus
+        locus = self._shown_locus(evaluation)
         if locus is None or len(locus.gains) < 2:
             update_source(self.locus_source, {"x0": [], "y0": [], "x1": [], "y1": [], "gain": []})
             return
@@ -296,23 +343,34 @@ class PoleMap:
         })
 
     def _refresh_arrows(self, evaluation) -> None:
+        if self.state.editing == "estimator":  # the arrows belong to an entry of K
+            update_source(self.arrow_source, {"x_start": [], "y_start": [], "x_end": [], "y_end": []})
+            return
         starts, tips = evaluation.view_ranges.arrows
         update_source(self.arrow_source, {"x_start": starts.real.tolist(), "y_start": starts.imag.tolist(),
                                           "x_end": tips.real.tolist(), "y_end": tips.imag.tolist()})
 
     def _refresh_legend(self, evaluation) -> None:
-        locus = evaluation.selected_locus
+        editing_estimator = self.state.editing == "estimator" and self.state.estimator_evaluation is not None
+        locus = self._shown_locus(evaluation)
         rows = []
         if locus is not None and len(locus.gains) >= 2:
-            symbol = entry_symbol(*locus.entry)
-            rows.append(
-                f'<span class="ramp"></span> locus of {symbol} from {format_number(locus.gains[0])} (light) '
-                f"to {format_number(locus.gains[-1])} (dark); arrows: where poles move as {symbol} grows"
-            )
+            if editing_estimator:
+                symbol = estimator_entry_symbol(*locus.entry)
+                rows.append(f'<span class="ramp"></span> estimator poles as {symbol} goes from '
+                            f"{format_number(locus.gains[0])} (light) to {format_number(locus.gains[-1])} (dark)")
+            else:
+                symbol = entry_symbol(*locus.entry)
+                rows.append(
+                    f'<span class="ramp"></span> locus of {symbol} from {format_number(locus.gains[0])} (light) '
+                    f"to {format_number(locus.gains[-1])} (dark); arrows: where poles move as {symbol} grows"
+                )
         keys = [
-            (PALETTE["closed_loop"], "×", "closed loop (drag)"),
+            (PALETTE["closed_loop"], "×", "controller poles" + ("" if editing_estimator else " (drag)")),
             (PALETTE["open_loop"], "×", "open loop"),
         ]
+        if self.state.estimator_evaluation is not None:
+            keys.insert(1, (PALETTE["estimator"], "◆", "estimator poles" + (" (drag)" if editing_estimator else "")))
         if self.state.pinned is not None:
             keys.append((PALETTE["pinned"], "×", "pinned"))
         if self.state.lqr_poles is not None:
@@ -350,6 +408,9 @@ class PoleMap:
             return True
         x0, x1, y0, y1 = self._current_view()
         poles = np.asarray(evaluation.closed_loop.poles, complex)
+        compensator = self.state.estimator_evaluation
+        if compensator is not None:  # the estimator poles must stay in view too
+            poles = np.concatenate([poles, np.asarray(compensator.estimator_poles.poles, complex)])
         poles = poles[np.isfinite(poles)]
         # A pole hugging the frame is hard to see and to grab: treat the outer 5 % as outside.
         mx, my = EDGE_FRACTION * (x1 - x0), EDGE_FRACTION * (y1 - y0)
@@ -389,7 +450,9 @@ class PoleMap:
         if not self.state.begin_drag(index):
             return
         self._drag = {"index": index, "x": event.x, "y": event.y, "pole": self._shown_poles[index]}
-        if not self.state.closed_loop_movable()[index]:
+        movable = (self.state.estimator_evaluation.estimator_pole_movable
+                   if self._drag_source() is self.estimator_source else self.state.closed_loop_movable())
+        if not movable[index]:
             self.state.drag_pole(self._shown_poles[index], live=False)
             self._drag = None
 
@@ -413,6 +476,7 @@ class PoleMap:
         self._drag = None
         self.state.drag_pole(target, live=False, snap_distance=self._snap_distance())
         self._set_closed_poles(self.state.evaluation)  # also restores the marker if the drop was refused
+        self._set_estimator_poles()
 
     def _on_pole_data(self, attr, old, new) -> None:
         if self._setting_poles:
@@ -421,6 +485,7 @@ class PoleMap:
             # A change not made by a drag (e.g. a deleted point): show the design again.
             if self.state.evaluation is not None:
                 self._set_closed_poles(self.state.evaluation)
+                self._set_estimator_poles()
             return
         index = self._drag["index"]
         xs, ys = list(new.get("x", [])), list(new.get("y", []))
@@ -430,10 +495,23 @@ class PoleMap:
             self.state.cancel_drag()
             self._drag = None
             self._set_closed_poles(self.state.evaluation)
+            self._set_estimator_poles()
 
     def _on_pan_end(self, event) -> None:
         if self._drag is not None:
             self._finish(self._pointer_target(event))
+
+
+def _hover_rows(descriptions, movable, prefix: str, can_move: str, cannot_move: str) -> dict:
+    """The hover texts of a set of pole markers (label, damping, frequency, time constant, whether it moves)."""
+    rows = {"label": [], "zeta": [], "wn": [], "tau": [], "movable": []}
+    for description, moves in zip(descriptions, movable):
+        rows["label"].append(prefix + format_complex(description.value))
+        rows["zeta"].append(format_number(description.damping_ratio, 3))
+        rows["wn"].append(format_number(description.natural_frequency, 4) + " rad/s")
+        rows["tau"].append(format_number(description.time_constant, 4) + " s")
+        rows["movable"].append(can_move if moves else cannot_move)
+    return rows
 
 
 def _legend_css() -> str:
