@@ -472,11 +472,7 @@ def load_plant_family_file(path) -> PlantFamily:
     PlantFamily
         For a file without ``[parameters]`` or ``[[operating_points]]``: the plant alone.
     """
+    from ._plant_file import read_plant_file_text
+
     path = Path(path)
-    try:
-        text = path.read_text(encoding="utf-8")
-    except OSError as error:
-        raise PlantError(f"cannot read plant file {str(path)!r}: {error.strerror or error}") from None
-    except UnicodeDecodeError:
-        raise PlantError(f"{path.name}: not a UTF-8 text file; a plant file is TOML text") from None
-    return parse_plant_family_text(text, path.name)
+    return parse_plant_family_text(read_plant_file_text(path), path.name)

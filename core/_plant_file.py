@@ -219,15 +219,19 @@ def load_plant_file(path) -> Plant:
         file and the key.
     """
     path = Path(path)
+    return parse_plant_text(read_plant_file_text(path), path.name)
+
+
+def read_plant_file_text(path: Path) -> str:
+    """The text of a plant file, refusing an oversized or unreadable file (shared by the readers)."""
     try:
         if path.stat().st_size > MAX_PLANT_FILE_BYTES:
             raise PlantError(f"{path.name}: the file is larger than {MAX_PLANT_FILE_BYTES // 1000} kB")
-        text = path.read_text(encoding="utf-8")
+        return path.read_text(encoding="utf-8")
     except OSError as error:
         raise PlantError(f"cannot read plant file {str(path)!r}: {error.strerror or error}") from None
     except UnicodeDecodeError:
         raise PlantError(f"{path.name}: not a UTF-8 text file; a plant file is TOML text") from None
-    return parse_plant_text(text, path.name)
 
 
 def load_specs_file(path) -> DesignSpecs:
