@@ -31,6 +31,11 @@ LOCAL_CLUSTER = "local"
 IN_PROCESS_SECONDS = 8.0
 
 
+#: No dashboard; the scheduler's own small HTTP server (health checks) on a free loopback port, not on
+#: Dask's default 8787, which another cluster on the machine may hold (it then warns and moves anyway).
+_QUIET_SCHEDULER = {"dashboard": False, "dashboard_address": "127.0.0.1:0"}
+
+
 def _dask_missing() -> AnalysisError:
     return AnalysisError("Dask is not installed: install gainboard with the [dask] extra "
                          "(pip install 'gainboard[dask]') to sample on a cluster")
@@ -74,7 +79,8 @@ def run_monte_carlo_on_dask(plan: MonteCarloPlan, scheduler: str = LOCAL_CLUSTER
             count = workers or os.cpu_count() or 1
             # processes, one thread each: the chunks are numpy-bound and hold the GIL between LAPACK calls
             cluster = distributed.LocalCluster(n_workers=count, threads_per_worker=1, processes=True,
-                                               host="127.0.0.1", dashboard_address=None, silence_logs=40)
+                                               host="127.0.0.1", dashboard_address=None, silence_logs=40,
+                                               scheduler_kwargs=_QUIET_SCHEDULER)
             client = distributed.Client(cluster)
         else:
             try:

@@ -106,7 +106,8 @@ def dask_scaling(family, gain, seconds: float) -> None:
         import distributed
 
         with distributed.LocalCluster(n_workers=workers, threads_per_worker=1, processes=True, host="127.0.0.1",
-                                      dashboard_address=None, silence_logs=40) as cluster, \
+                                      dashboard_address=None, silence_logs=40,
+                                      scheduler_kwargs={"dashboard": False, "dashboard_address": "127.0.0.1:0"}) as cluster, \
                 distributed.Client(cluster) as client:
             client.wait_for_workers(workers)
             ready = time.perf_counter()
