@@ -102,6 +102,24 @@ def test_the_command_uses_an_existing_scheduler(loopback_cluster, tmp_path, caps
     assert first == second
 
 
+def test_the_workbench_setting_samples_on_the_named_scheduler(loopback_cluster):
+    from gainboard.app.robustness_state import RobustnessState
+    from gainboard.app.state import DesignState, plant_from_reference
+    from gainboard.core import assign_poles, margins_needed
+
+    plant, label, text = plant_from_reference("cart_pendulum")
+    design = DesignState(plant, plant_label=label, plant_text=text)
+    design.set_gain(assign_poles(plant, [-3 + 2j, -3 - 2j, -4, -5]).gain)
+    robust = RobustnessState(design)
+    robust.param.update(samples=6000, seed=3, scheduler=loopback_cluster)
+    assert robust.start_sampling()
+    robust.wait(120)
+    assert robust.message == "" and robust.result is not None
+    plan = plan_monte_carlo(robust.family, design.gain, samples=6000, seed=3, specs=design.specs,
+                            include_margins=margins_needed(design.specs), keep_poles=10_000)
+    _assert_identical(robust.result, run_monte_carlo(plan))
+
+
 def test_an_unreachable_scheduler_is_reported_with_what_to_do():
     family = parse_plant_family_text(CUBIC_FAMILY)
     plan = plan_monte_carlo(family, CUBIC_GAIN, samples=100, seed=1)
