@@ -20,6 +20,7 @@ from gainboard import core
 
 from . import cli_estimator, cli_output
 from .pole_list import parse_pole_list
+from .robustness_command import add_robustness_parser
 
 #: Options whose value may start with '-' (negative poles, gains, states).
 _VALUE_OPTIONS = ("--poles", "--gain", "--x0", "--entry", "--range") + cli_estimator.VALUE_OPTIONS
@@ -52,6 +53,17 @@ def resolve_plant(reference: str) -> core.Plant:
 
     path, _ = resolve_plant_reference(reference)
     return core.load_plant_file(path)
+
+
+def resolve_model(args) -> core.Plant:
+    """The plant of ``args.plant``: its nominal model, or the model of ``--operating-point NAME``."""
+    name = getattr(args, "operating_point", None)
+    if name is None:
+        return resolve_plant(args.plant)
+    from gainboard.sample_plants import resolve_plant_reference
+
+    path, _ = resolve_plant_reference(args.plant)
+    return core.load_plant_family_file(path).model(name).plant
 
 
 def parse_gain(text: str, plant: core.Plant) -> np.ndarray:
@@ -131,7 +143,7 @@ def command_assign(args) -> int:
 
 
 def command_evaluate(args) -> int:
-    plant = resolve_plant(args.plant)
+    plant = resolve_model(args)
     gain = parse_gain(args.gain, plant)
     specs = core.load_specs_file(args.specs) if args.specs else plant.specs
     x0 = parse_vector(args.x0, plant.state_count, "--x0") if args.x0 else None
@@ -153,7 +165,7 @@ def command_evaluate(args) -> int:
 
 
 def command_sweep(args) -> int:
-    plant = resolve_plant(args.plant)
+    plant = resolve_model(args)
     gain = parse_gain(args.gain, plant)
     row, col = parse_entry(args.entry, plant)
     intervals = core.entry_stable_intervals(plant, gain, row, col)
@@ -233,6 +245,7 @@ def build_parser() -> argparse.ArgumentParser:
 
     plant_help = "plant file (TOML) or the name of a bundled plant (see `gainboard plants`)"
     gain_help = 'K as an inline JSON array of rows such as "[[199, 55, 8]]", or a JSON file {"K": [[...]]}'
+    point_help = "use this operating point's model of the plant file instead of the nominal one"
 
     assign = commands.add_parser("assign", help="compute K that places the closed-loop poles at targets")
     assign.add_argument("plant", help=plant_help)
@@ -247,6 +260,7 @@ def build_parser() -> argparse.ArgumentParser:
     evaluate.add_argument("--x0", help="initial state for the regulation response, e.g. 0.1,0,0 (default: the plant file's)")
     evaluate.add_argument("--specs", help="spec file (TOML) to check against (default: the plant file's [specs])")
     evaluate.add_argument("--horizon", type=float, help="simulation length in seconds (default: from the slowest pole)")
+    evaluate.add_argument("--operating-point", metavar="NAME", help=point_help)
     evaluate.add_argument("--json", action="store_true", help="print JSON instead of a table")
     cli_estimator.add_evaluate_options(evaluate)
     evaluate.set_defaults(handler=command_evaluate)
@@ -258,8 +272,11 @@ def build_parser() -> argparse.ArgumentParser:
     sweep.add_argument("--gain", required=True, help=gain_help)
     sweep.add_argument("--entry", required=True, help="ROW,COL of the entry, counted from 1 as in k_ij")
     sweep.add_argument("--range", help="LOW,HIGH of the locus sweep (default: around the current value)")
+    sweep.add_argument("--operating-point", metavar="NAME", help=point_help)
     sweep.add_argument("--json", action="store_true", help="print JSON instead of a table")
     sweep.set_defaults(handler=command_sweep)
+
+    add_robustness_parser(commands, plant_help, gain_help)
 
     export = commands.add_parser("export", help="write K from a design file where it is used (firmware, scripts, reviews)")
     export.add_argument("design", help="design file (JSON), saved by the workbench or `assign --save`")

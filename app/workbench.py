@@ -31,6 +31,7 @@ from gainboard import core
 from .autosave import AutosaveStore
 from .evaluation_pool import PooledRunner, shared_pool
 from .refresh_policy import PLOT_VIEWS, Detail, RefreshPolicy, detail_options
+from .robustness_state import SAMPLING_CAUTION, RobustnessState
 from .room_link import RoomLink
 from .rooms import ROOM_PARAMETER
 from .scheduling import LatestOnly
@@ -52,6 +53,7 @@ from .views.page_header import PageHeader
 from .views.plant_panel import PlantPanel
 from .views.pole_map import PoleMap
 from .views.responses import ResponsePlots
+from .views.robustness_panel import RobustnessPanel
 from .views.share_panel import SharePanel
 from .views.tables import ChecksTable, PoleTable
 
@@ -155,6 +157,14 @@ class Workbench:
             "file_panel": self.file_panel.refresh,
             "header": lambda evaluation: self.page_header.refresh(evaluation, self.room_link.header_html()),
         }
+        # Operating points and sampling follow the state on their own; a sampling runs in a
+        # background thread and reports back through this session's event loop.
+        self.robust = RobustnessState(state, deliver=self.run_in_session, background=document is not None)
+        self.robust_panel = RobustnessPanel(self.robust, self.pole_map.figure, self.responses.output_figure)
+        self.responses.kind.param.watch(lambda event: self.robust_panel.show_response_band(self.responses.kind_name),
+                                        "value")
+        self.robust_panel.show_response_band(self.responses.kind_name)
+        self.robust.param.watch(self._on_robustness, ["revision", "result", "result_is_current"])
         if document is not None:
             # Served: the tables wait for a pause, and every evaluation runs off the event loop.
             state.refresh = served_refresh_policy()
@@ -219,6 +229,7 @@ class Workbench:
             ("Responses", scrolling(pn.Column(self.responses.panel, self.estimator_responses.panel, margin=0), 478)),
             ("Checks", scrolling(pn.Column(self.compensator_checks.panel, self.checks.panel, margin=0), 478)),
             ("Poles", scrolling(self.pole_table.panel, 478)),
+            ("Robust", scrolling(self.robust_panel.panel, 478)),
             width=480, margin=(0, 5), dynamic=False,
         )
         nudges = NudgeKeys(on_nudge=self._nudge, on_end=self.state.end_gesture, width=0, height=0, margin=0)
@@ -230,6 +241,14 @@ class Workbench:
             margin=0,
             styles={"background": PALETTE["paper"]},
         )
+
+    def _on_robustness(self, *events) -> None:
+        """A plant family's operating points or sampling changed: the sliders and checks show them too."""
+        robust = self.robust
+        with pn.io.hold():
+            self.sliders.show_common(robust.common)
+            self.checks.show_family(robust.spec_over_points, robust.result, robust.result_is_current,
+                                    SAMPLING_CAUTION)
 
     # -- refresh cycle ------------------------------------------------------------------------
 
@@ -470,6 +489,7 @@ class Workbench:
         if self._closed:
             return
         self._closed = True
+        self.robust.cancel_sampling()  # a sampling for a closed page would only take CPU from others
         self.room_link.leave(quietly=True)
         self.state.runner.close()
         if self.autosave is not None:

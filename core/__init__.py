@@ -30,3 +30,8 @@ from ._compensator import *  # noqa: F401,F403
 from ._compensator_responses import *  # noqa: F401,F403
 from ._compensator_evaluation import *  # noqa: F401,F403
 from ._compensator_sampling import *  # noqa: F401,F403
+from ._expressions import *  # noqa: F401,F403
+from ._plant_family import *  # noqa: F401,F403
+from ._robustness import *  # noqa: F401,F403
+from ._monte_carlo import *  # noqa: F401,F403
+from ._distributed import *  # noqa: F401,F403  (imports Dask only when a run uses it)

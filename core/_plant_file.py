@@ -97,7 +97,16 @@ def plant_from_mapping(data: dict, source: str = "plant file") -> Plant:
     ------
     PlantError
         With a message prefixed by ``source`` that names the key at fault.
+
+    Notes
+    -----
+    A plant file with ``[parameters]``, ``[[operating_points]]`` or expression entries
+    describes a family of models; this returns its nominal model (see ``load_plant_family_file``).
     """
+    from ._plant_family import is_family_mapping, plant_family_from_mapping
+
+    if is_family_mapping(data):
+        return plant_family_from_mapping(data, source).nominal
     try:
         return _plant_from_mapping(data)
     except PlantError as error:
@@ -178,13 +187,17 @@ def parse_plant_text(text: str, source: str = "plant file") -> Plant:
     >>> plant.state_count
     1
     """
+    return plant_from_mapping(toml_document(text, source), source)
+
+
+def toml_document(text: str, source: str) -> dict:
+    """The parsed TOML of a plant file's text, refusing oversized text and bad TOML (shared by the readers)."""
     if len(text.encode("utf-8", errors="replace")) > MAX_PLANT_FILE_BYTES:
         raise PlantError(f"{source}: the file is larger than {MAX_PLANT_FILE_BYTES // 1000} kB; is it really a plant file?")
     try:
-        data = tomllib.loads(text)
+        return tomllib.loads(text)
     except tomllib.TOMLDecodeError as error:
         raise PlantError(f"{source}: not valid TOML ({error})") from None
-    return plant_from_mapping(data, source)
 
 
 def load_plant_file(path) -> Plant:
@@ -206,15 +219,19 @@ def load_plant_file(path) -> Plant:
         file and the key.
     """
     path = Path(path)
+    return parse_plant_text(read_plant_file_text(path), path.name)
+
+
+def read_plant_file_text(path: Path) -> str:
+    """The text of a plant file, refusing an oversized or unreadable file (shared by the readers)."""
     try:
         if path.stat().st_size > MAX_PLANT_FILE_BYTES:
             raise PlantError(f"{path.name}: the file is larger than {MAX_PLANT_FILE_BYTES // 1000} kB")
-        text = path.read_text(encoding="utf-8")
+        return path.read_text(encoding="utf-8")
     except OSError as error:
         raise PlantError(f"cannot read plant file {str(path)!r}: {error.strerror or error}") from None
     except UnicodeDecodeError:
         raise PlantError(f"{path.name}: not a UTF-8 text file; a plant file is TOML text") from None
-    return parse_plant_text(text, path.name)
 
 
 def load_specs_file(path) -> DesignSpecs:

@@ -187,10 +187,14 @@ class EntryControls(EntryActions):
         )
         self.strip = HtmlBox(css=owner.css, width=slider_width + 10, margin=(0, 4, 0, 8),
                              css_classes=[f"gb-strip-{row + 1}-{col + 1}"])
+        # for a plant family: the values stable at every operating point (empty otherwise)
+        self.common_strip = HtmlBox(css=owner.css, width=slider_width + 10, margin=(0, 4, 0, 8),
+                                    css_classes=[f"gb-common-strip-{row + 1}-{col + 1}"])
         self.panel = pn.Column(
             pn.Row(self.label, self.number, self.locus_button, margin=0),
             self.slider,
             self.strip.panel,
+            self.common_strip.panel,
             margin=(2, 0, 6, 0),
             css_classes=["gb-entry"],
         )
@@ -288,6 +292,24 @@ class GainSliders:
                 controls.show_number(float(evaluation.gain[i, j]))
         finally:
             self.syncing = False
+
+    def show_common(self, common) -> None:
+        """Under each slider, the values stable at every operating point of a plant family (None: none)."""
+        for (i, j), controls in self._controls.items():
+            found = (common or {}).get((i, j))
+            if found is None:
+                controls.common_strip.object = ""
+                continue
+            low, high = float(controls.slider.start), float(controls.slider.end)
+            value = float(controls.number.value if controls.number.value is not None else controls.slider.value)
+            inside = any(a < value < b for a, b in found.intervals)
+            badge = ('<span class="gb-pass">✓ at every operating point</span> · ' if inside
+                     else '<span class="gb-fail">✗ not at every operating point</span> · ')
+            controls.common_strip.object = (
+                f'<div>{interval_strip_svg(low, high, value, found)}</div>'
+                f'<div class="gb-interval-text">{badge}'
+                f'{_interval_text(controls.symbol, found, high - low).replace("stable for", "all points for", 1)}'
+                "</div>")
 
     def refresh(self, evaluation) -> None:
         """Show K, the ranges and the stable intervals of ``evaluation``."""

@@ -85,7 +85,36 @@ class ChecksTable:
     def __init__(self, state):
         self.state = state
         self.pane = HtmlBox(css=TABLE_CSS, width=WIDTH, margin=(4, 5), name="checks_table")
-        self.panel = pn.Column(self.pane.panel, margin=0)
+        # the same specs over a plant family's operating points and its sampling (see show_family)
+        self.family_pane = HtmlBox(css=TABLE_CSS, width=WIDTH, margin=(4, 5), name="checks_over_points")
+        self.panel = pn.Column(self.pane.panel, self.family_pane.panel, margin=0)
+
+    def show_family(self, over_points, sampling, sampling_is_current: bool, caution: str) -> None:
+        """The specs' worst cases over the operating points and, after a sampling, their pass fractions."""
+        if not over_points:
+            self.family_pane.object = ""
+            return
+        rows = []
+        for spec in over_points:
+            label = escape(spec.name + (f" ({spec.subject})" if spec.subject else ""))
+            verdict = "gb-pass" if spec.passed_points == spec.points else "gb-fail"
+            rows.append(f'<tr><td>{label}</td><td class="num">{format_number(spec.required)}</td>'
+                        f'<td class="num">{format_number(spec.worst_achieved)}</td><td>{escape(spec.worst_point)}</td>'
+                        f'<td class="{verdict}">{spec.passed_points} of {spec.points}</td></tr>')
+        html = ['<div class="gb-heading">over the operating points</div>',
+                '<table class="gb-table gb-specs-over-points"><tr><th>spec</th><th>required</th><th>worst</th>'
+                '<th>at</th><th>met at</th></tr>' + "".join(rows) + "</table>"]
+        if sampling is not None:
+            stale = "" if sampling_is_current else '<div class="gb-fail">K or the plant changed since this sampling.</div>'
+            fractions = [("stable", sampling.stable), *sampling.spec_pass.items()]
+            body = "".join(f'<tr><td>{escape(name)}</td><td class="num">{e.fraction:.4f}</td>'
+                           f'<td class="num">[{e.interval[0]:.4f}, {e.interval[1]:.4f}]</td></tr>'
+                           for name, e in fractions)
+            html += [f'<div class="gb-heading">pass fractions of {sampling.samples} sampled models</div>', stale,
+                     f'<table class="gb-table gb-pass-fractions"><tr><th>spec</th><th>fraction</th>'
+                     f'<th>{sampling.stable.confidence:.0%} interval</th></tr>' + body + "</table>",
+                     f'<div class="gb-small">{escape(caution)}</div>']
+        self.family_pane.object = "".join(html)
 
     def refresh(self, evaluation) -> None:
         html = ['<div class="gb-heading">specs</div>']
