@@ -48,10 +48,10 @@ class TraceSet:
     its own copy (a twelfth of the bytes of a 12-state step per copy).
     """
 
-    def __init__(self, figure, *, level: str = "glyph"):
+    def __init__(self, figure, *, level: str = "glyph", name: str | None = None):
         self.figure = figure
         self.level = level
-        self.source = ColumnDataSource({"t": np.zeros(0, dtype=np.float32)})
+        self.source = ColumnDataSource({"t": np.zeros(0, dtype=np.float32)}, name=name)
         self.renderers: list = []
         self.styles: tuple = ()
 
@@ -140,7 +140,7 @@ class ResponsePlots:
                                      line_dash="dotted", line_width=1.6, line_alpha=0.9)
         # The design's traces (the first renderers of each figure: tests and the benchmark
         # watch the outputs' data) and, below them, the pinned design's.
-        self.output_traces = TraceSet(self.output_figure)
+        self.output_traces = TraceSet(self.output_figure, name="response_output_traces")
         self.input_traces = TraceSet(self.input_figure)
         self.output_ghosts = TraceSet(self.output_figure, level="underlay")
         self.input_ghosts = TraceSet(self.input_figure, level="underlay")

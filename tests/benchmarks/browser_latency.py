@@ -49,7 +49,8 @@ INSTALL_PROBE = """() => {
     const start = () => { if (window.__start === null) window.__start = performance.now(); };
     document.addEventListener('pointermove', e => { if (e.buttons) start(); }, true);
     document.addEventListener('keydown', start, true);
-    const source = Bokeh.documents[0].get_model_by_name('response_outputs').renderers[0].data_source;
+    const source = Bokeh.documents[0].get_model_by_name('response_output_traces')
+        || Bokeh.documents[0].get_model_by_name('response_outputs').renderers[0].data_source;  // the floor page
     source.change.connect(() => {
         if (window.__start === null) return;
         const began = window.__start;
@@ -61,10 +62,10 @@ INSTALL_PROBE = """() => {
 # The response plot holds data: the page is usable (its plots are drawn once this holds).
 PLOTS_DRAWN = """() => {
     if (!window.Bokeh || !Bokeh.documents.length) return false;
-    const figure = Bokeh.documents[0].get_model_by_name('response_outputs');
-    if (!figure) return false;
-    if (!figure.renderers.length) return false;
-    const data = figure.renderers[0].data_source.data;
+    const source = Bokeh.documents[0].get_model_by_name('response_output_traces')
+        || Bokeh.documents[0].get_model_by_name('response_outputs').renderers[0].data_source;  // the floor page
+    if (!source) return false;
+    const data = source.data;
     return Object.values(data).some(column => column.length > 0) ? performance.now() : false;
 }"""
 

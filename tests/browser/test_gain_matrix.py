@@ -68,7 +68,7 @@ def test_a_large_k_is_a_matrix_of_cells_with_names_on_the_margins(stage):
     shown = cells(stage)
     assert set(shown) == {(i, j) for i in range(3) for j in range(12)}
     # One slider only: the selected entry's (k11 at first).
-    assert stage.page.locator(".noUi-handle").count() == 1
+    assert stage.page.locator(".gb-entry .noUi-handle").count() == 1
     assert selected(stage) == (0, 0)
     text = " ".join(stage.page.locator(".gb-gain-matrix th").all_text_contents())
     for name in (*plant.input_names, "payload yaw", "stage x velocity"):

@@ -106,7 +106,7 @@ def test_an_arrow_key_nudges_a_gain_by_a_small_relative_step_not_to_the_slider_g
 # Counts changes of the outputs plot's data in the page (the plot is redrawn on each).
 _COUNT_PLOT_UPDATES = """() => {
     window.__plotUpdates = 0;
-    const source = Bokeh.documents[0].get_model_by_name('response_outputs').renderers[0].data_source;
+    const source = Bokeh.documents[0].get_model_by_name('response_output_traces');
     source.change.connect(() => { window.__plotUpdates += 1; });
 }"""
 
