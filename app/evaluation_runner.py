@@ -19,7 +19,7 @@ from gainboard import core
 
 from .refresh_policy import Detail
 
-__all__ = ["EvaluationRequest", "Delivery", "InlineRunner", "evaluate_request"]
+__all__ = ["EvaluationRequest", "Placed", "Delivery", "InlineRunner", "evaluate_request"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -39,6 +39,9 @@ class EvaluationRequest:
         The state's inputs this evaluation describes (restored if a newer one fails).
     refine : gainboard.core.DesignEvaluation or None
         When set, the request only adds the stable intervals of every entry to this evaluation.
+    targets : tuple of complex or None
+        When set, K is first computed by pole assignment for these closed-loop poles (a pole
+        drag, typed targets) and the result is a :class:`Placed`.
     estimator_gain : numpy.ndarray or None
         L of the design's estimator; with it the result is a
         :class:`gainboard.core.ObserverDesignEvaluation` (the compensator evaluated too).
@@ -53,8 +56,17 @@ class EvaluationRequest:
     detail: Detail
     inputs: dict
     refine: object | None = None
+    targets: tuple | None = None
     estimator_gain: np.ndarray | None = None
     estimator_options: object | None = None
+
+
+@dataclass(frozen=True, eq=False)
+class Placed:
+    """The result of a request with targets: the pole assignment and the evaluation of its K."""
+
+    placement: object
+    evaluation: object
 
 
 #: ``deliver(request, evaluation, error)``: exactly one of evaluation and error is None.
@@ -62,29 +74,40 @@ Delivery = Callable[[EvaluationRequest, object, BaseException], None]
 
 
 def evaluate_request(request: EvaluationRequest):
-    """The computation itself (the same in every runner): one call of the core.
+    """The computation itself (the same in every runner): a few calls of the core.
 
-    With an estimator gain the result is an :class:`gainboard.core.ObserverDesignEvaluation`:
+    With targets, K is computed by pole assignment first and the result is a :class:`Placed`.
+    With an estimator gain the evaluation is an :class:`gainboard.core.ObserverDesignEvaluation`:
     full-state feedback of K and the compensator with L, sharing the margins of K.
     """
     refine = request.refine
     if isinstance(refine, core.ObserverDesignEvaluation):
         refine = refine.design
+    gain, placement = request.gain, None
+    if request.targets is not None and refine is None:
+        placement = core.assign_poles(request.plant, list(request.targets))
+        gain = placement.gain
     if request.estimator_gain is None:
         if refine is not None:
-            return core.with_all_entry_intervals(refine)
-        return core.evaluate_design(request.plant, request.gain, request.options)
-    if refine is None:
-        return core.evaluate_observer_design(request.plant, request.gain, request.estimator_gain, request.options,
-                                             request.estimator_options)
-    design = core.with_all_entry_intervals(refine)
-    compensator = core.evaluate_compensator(request.plant, design.gain, request.estimator_gain,
-                                            request.estimator_options, state_feedback_margins=design.margins)
-    return core.ObserverDesignEvaluation(design=design, compensator=compensator)
+            evaluation = core.with_all_entry_intervals(refine)
+        else:
+            evaluation = core.evaluate_design(request.plant, gain, request.options)
+    elif refine is None:
+        evaluation = core.evaluate_observer_design(request.plant, gain, request.estimator_gain, request.options,
+                                                   request.estimator_options)
+    else:
+        design = core.with_all_entry_intervals(refine)
+        compensator = core.evaluate_compensator(request.plant, design.gain, request.estimator_gain,
+                                                request.estimator_options, state_feedback_margins=design.margins)
+        evaluation = core.ObserverDesignEvaluation(design=design, compensator=compensator)
+    return evaluation if placement is None else Placed(placement, evaluation)
 
 
 class InlineRunner:
     """Evaluates at once, in the caller's thread (a state used from Python, the tests)."""
+
+    #: Results (and failures) are delivered before ``submit`` returns.
+    synchronous = True
 
     def submit(self, request: EvaluationRequest, deliver: Delivery) -> None:
         try:

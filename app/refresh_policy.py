@@ -13,8 +13,8 @@ Three levels of detail, each a superset of the one before:
 ========  ==============================================================  =========================
 detail    computed                                                        redrawn
 ========  ==============================================================  =========================
-STEP      poles, the selected entry's locus, interval and arrows,          pole map, response plots
-          responses with metrics, view ranges (kept or growing)
+STEP      poles, the selected entry's locus, interval and arrows,          pole map, response plots,
+          responses with metrics, view ranges (kept or growing)           gain values
 PAUSE     + the exact stable intervals of every entry                     every view
 COMPLETE  + loop margins; view ranges fitted to the data again            every view
 ========  ==============================================================  =========================
@@ -70,8 +70,9 @@ _OPTIONS = {
                                    plots_only=False),
 }
 
-#: Views redrawn at every level; the others are redrawn from PAUSE on.
-PLOT_VIEWS = frozenset({"pole_map", "response_plots", "estimator_responses"})
+#: Views redrawn at every level; the others are redrawn from PAUSE on. The values in the gain
+#: sliders' number boxes follow too (a nudge moves no handle in the browser); their strips wait.
+PLOT_VIEWS = frozenset({"pole_map", "response_plots", "estimator_responses", "slider_values"})
 
 
 def detail_options(detail: Detail) -> DetailOptions:

@@ -39,7 +39,7 @@ import param
 from gainboard import core
 
 from .design_file import now_timestamp
-from .evaluation_runner import EvaluationRequest, InlineRunner
+from .evaluation_runner import EvaluationRequest, InlineRunner, Placed
 from .gain_history import GainLog, UndoHistory
 from .plant_catalogue import bundled_plant_catalogue, plant_from_reference  # noqa: F401 - their old home
 from .pole_drag import targets_after_drag
@@ -77,6 +77,9 @@ class DesignState(LoadingMixin, LqrMixin, EstimatorMixin, param.Parameterized):
         intervals, none left for a pause: a state without a page to keep fluid).
     runner : optional
         Where evaluations run (default: at once, :class:`~gainboard.app.evaluation_runner.InlineRunner`).
+    first_detail : Detail
+        Level of detail of the first evaluation, made at once (a served page opens with a
+        STEP evaluation and asks for the complete one off the event loop: :meth:`complete`).
     """
 
     plant = param.ClassSelector(class_=core.Plant, doc="The checked plant the gain is designed for.")
@@ -128,7 +131,8 @@ class DesignState(LoadingMixin, LqrMixin, EstimatorMixin, param.Parameterized):
                              doc="Counts evaluations shown; views and tests use it to know an update happened.")
 
     def __init__(self, plant: core.Plant, *, plant_label: str = "", plant_text: str = "", gain=None,
-                 refresh: RefreshPolicy | None = None, runner=None, **params):
+                 refresh: RefreshPolicy | None = None, runner=None, first_detail: Detail = Detail.COMPLETE,
+                 **params):
         self.history = UndoHistory(same=same_point, copy=lambda point: point)  # points hold copies already
         self.gain_log = GainLog()
         self.refresh = refresh if refresh is not None else RefreshPolicy(texts_at_least_every=0.0)
@@ -138,6 +142,7 @@ class DesignState(LoadingMixin, LqrMixin, EstimatorMixin, param.Parameterized):
         self._sequence = 0  # requests made
         self._shown_sequence = 0  # the request whose evaluation is shown
         self._shown_inputs: dict = {}
+        self._on_placed: dict = {}  # request sequence -> what takes a pole assignment's K over
         #: An object with get/put (see gainboard.app.rooms.SharedEvaluations) shared by the sessions
         #: of a live room, so that a design shown in several sessions is evaluated once; None: no sharing.
         self.evaluation_cache = None
@@ -150,9 +155,9 @@ class DesignState(LoadingMixin, LqrMixin, EstimatorMixin, param.Parameterized):
         )
         # a broken plant at start-up is the caller's error: the first evaluation runs here and raises
         self._shown_inputs = self._inputs()
-        evaluation = core.evaluate_design(plant, starting_gain, self._options(Detail.COMPLETE, previous=None))
+        evaluation = core.evaluate_design(plant, starting_gain, self._options(first_detail, previous=None))
         with param.edit_constant(self):
-            self.param.update(evaluation=evaluation, detail=Detail.COMPLETE, revision=1)
+            self.param.update(evaluation=evaluation, detail=first_detail, revision=1)
         self._reset_lqr_weights()
         self.gain_log.record(self.plant, self.gain)
         if note:
@@ -189,7 +194,12 @@ class DesignState(LoadingMixin, LqrMixin, EstimatorMixin, param.Parameterized):
             failure, self._failure = self._failure, None
             raise failure
 
-    def _request_evaluation(self, detail: Detail, refine=None) -> None:
+    def _request_evaluation(self, detail: Detail, refine=None, targets=None, on_placed=None) -> None:
+        """Ask the runner for one evaluation of the current inputs at ``detail`` (see EvaluationRequest).
+
+        ``targets``: compute K by pole assignment first; ``on_placed(placement)`` then takes
+        the new K over (inputs, history) just before its evaluation is shown.
+        """
         self._sequence += 1
         shown = self.evaluation
         same_plant = shown is not None and shown.plant is self.plant
@@ -198,10 +208,13 @@ class DesignState(LoadingMixin, LqrMixin, EstimatorMixin, param.Parameterized):
         shown_estimator = self.estimator_evaluation if same_plant else None
         request = EvaluationRequest(sequence=self._sequence, plant=self.plant, gain=np.array(self.gain, copy=True),
                                     options=options, detail=detail, inputs=self._inputs(), refine=refine,
+                                    targets=None if targets is None else tuple(complex(t) for t in targets),
                                     estimator_gain=None if settings is None else np.array(settings.gain, copy=True),
                                     estimator_options=self._estimator_options(detail, shown_estimator))
+        if targets is not None:
+            self._on_placed[request.sequence] = on_placed
         cache, key = self.evaluation_cache, None
-        if cache is not None and refine is None:
+        if cache is not None and refine is None and targets is None:
             key = (id(self.plant), id(self.specs), self.gain.shape, self.gain.tobytes(), self.selected_entry, detail,
                    id(settings), self.editing, self.estimator_selected_entry)
             found = cache.get(key, self.plant, self.specs)
@@ -218,19 +231,38 @@ class DesignState(LoadingMixin, LqrMixin, EstimatorMixin, param.Parameterized):
 
     def _deliver(self, request: EvaluationRequest, evaluation, error) -> None:
         """Show a delivered evaluation, unless a newer one is shown already."""
+        on_placed = self._on_placed.pop(request.sequence, None)
+        for older in [sequence for sequence in self._on_placed if sequence < request.sequence]:
+            del self._on_placed[older]  # superseded while waiting: never delivered
         if request.sequence < self._shown_sequence:
             return  # superseded: a newer request's result is on screen
+        if request.refine is not None and request.sequence < self._sequence:
+            return  # the details of a design a newer change has replaced already
         if error is not None:
             self._failure = error
             if request.sequence == self._sequence:
                 # the newest request failed: go back to the inputs of the design shown
                 with param.discard_events(self):
                     self.param.update(**self._shown_inputs)
-                if not isinstance(self.runner, InlineRunner):
-                    self._report_failure(error)
+                if not getattr(self.runner, "synchronous", False):
+                    self._report_failure(error, "place the poles there" if request.targets is not None else "")
+                    if request.targets is not None:
+                        if request.detail is Detail.COMPLETE:
+                            self.end_gesture()  # a refused drop: the drag so far is one undo step
+                        self.param.trigger("evaluation")  # the pole map puts the dragged marker back
             return
+        inputs = request.inputs
+        if isinstance(evaluation, Placed):
+            placed, evaluation = evaluation, evaluation.evaluation
+            design = evaluation.design if isinstance(evaluation, core.ObserverDesignEvaluation) else evaluation
+            inputs = dict(inputs, gain=design.gain)
+            if request.sequence == self._sequence:  # a newer change would be overwritten
+                with param.discard_events(self):
+                    self.gain = np.array(design.gain, copy=True)
+            if on_placed is not None:
+                on_placed(placed.placement)
         self._shown_sequence = request.sequence
-        self._shown_inputs = request.inputs
+        self._shown_inputs = inputs
         compensator = None
         if isinstance(evaluation, core.ObserverDesignEvaluation):
             evaluation, compensator = evaluation.design, evaluation.compensator
@@ -239,12 +271,13 @@ class DesignState(LoadingMixin, LqrMixin, EstimatorMixin, param.Parameterized):
             self.param.update(estimator_evaluation=compensator)
             self.param.update(evaluation=evaluation, detail=request.detail, revision=self.revision + 1)
 
-    def _report_failure(self, error: BaseException) -> None:
+    def _report_failure(self, error: BaseException, action: str = "") -> None:
+        action = action or "evaluate this design"
         if isinstance(error, core.GainboardError):
-            self._say(f"Could not evaluate this design: {error}", "error")
+            self._say(f"Could not {action}: {error}", "error")
         else:
             log.error("an evaluation failed", exc_info=error)
-            self._say(f"Could not evaluate this design: unexpected {type(error).__name__}: {error}. "
+            self._say(f"Could not {action}: unexpected {type(error).__name__}: {error}. "
                       "The design shown was kept.", "error")
 
     def catch_up(self) -> bool:
@@ -256,6 +289,11 @@ class DesignState(LoadingMixin, LqrMixin, EstimatorMixin, param.Parameterized):
             return False
         self._request_evaluation(Detail.PAUSE, refine=self.evaluation)
         return True
+
+    def complete(self) -> None:
+        """Evaluate the design shown at COMPLETE detail (nothing to do when it is complete already)."""
+        if self.detail < Detail.COMPLETE:
+            self._request_evaluation(self.refresh.release())
 
     @property
     def evaluating(self) -> bool:
@@ -331,6 +369,10 @@ class DesignState(LoadingMixin, LqrMixin, EstimatorMixin, param.Parameterized):
         else:
             self.history.accepted(before, self._point())
             self._sync_history_depths()
+        self._after_gain_change(note, live)
+
+    def _after_gain_change(self, note: str, live: bool) -> None:
+        """Show ``note`` (or clear the message) and, outside a gesture, commit the change."""
         if note:
             self._say(note, "note")
         else:
@@ -345,6 +387,19 @@ class DesignState(LoadingMixin, LqrMixin, EstimatorMixin, param.Parameterized):
             self._check_entry(row, col)
             gain[row, col] = float(value)
             return self.set_gain(gain, live=live)
+        return False
+
+    def nudge_entry(self, row: int, col: int, steps: int, *, coarse: bool = False) -> bool:
+        """Move k[row, col] by ``steps`` arrow-key presses: a fine step relative to its value (``coarse``: 10×).
+
+        A step of a gesture (arrow presses in a burst make one undo step, closed by
+        :meth:`end_gesture`); the rule is the core's :func:`~gainboard.core.nudged_value`.
+        """
+        with self._reporting(f"nudge entry k{row + 1}{col + 1}"):
+            self._check_entry(row, col)
+            ranges = self.evaluation.view_ranges.sliders if self.evaluation.view_ranges is not None else {}
+            value = core.nudged_value(float(self.gain[row, col]), ranges.get((row, col)), steps, coarse)
+            return self.set_entry(row, col, value, live=True)
         return False
 
     def _check_entry(self, row: int, col: int) -> None:
@@ -472,8 +527,8 @@ class DesignState(LoadingMixin, LqrMixin, EstimatorMixin, param.Parameterized):
         drag = self._drag
         if not live:
             self._drag = None  # the release ends the drag whatever happens next
-        accepted = False
         if drag.get("kind") == "estimator":
+            accepted = False
             with self._reporting("place the estimator poles there"):
                 accepted = self._drag_estimator_pole(drag, target, live=live, snap_distance=snap_distance)
             if not live:
@@ -484,11 +539,10 @@ class DesignState(LoadingMixin, LqrMixin, EstimatorMixin, param.Parameterized):
                 drag["poles"], drag["index"], target, snap_distance=snap_distance, movable=drag["movable"]
             )
             drag["request"] = request
-            placement = core.assign_poles(self.plant, request.targets)
-            accepted = self._apply_placement(placement, live=live, note=request.note)
+            return self._place(request.targets, live=live, note=request.note)
         if not live:
             self.end_gesture()
-        return accepted
+        return False
 
     @property
     def drag_preview(self):
@@ -511,18 +565,38 @@ class DesignState(LoadingMixin, LqrMixin, EstimatorMixin, param.Parameterized):
         if self.editing == "estimator":
             return self.place_estimator_poles(targets)
         with self._reporting("place the poles there"):
-            placement = core.assign_poles(self.plant, list(targets))
-            return self._apply_placement(placement, live=False, note="")
+            return self._place(list(targets), live=False, note="")
         return False
 
-    def _apply_placement(self, placement, *, live: bool, note: str) -> bool:
-        """Use a pole assignment's gain; its method goes to ``placement_summary``, warnings to the message."""
-        if not placement.accurate:
-            note = " ".join(n for n in (note, "The poles could only be placed approximately:", placement.note) if n)
-        accepted = self.set_gain(placement.gain, live=live, note=note)
-        if accepted:
+    def _place(self, targets, *, live: bool, note: str) -> bool:
+        """Ask for K by pole assignment (off the event loop when served) and take it over when it arrives.
+
+        Returns whether the assignment was accepted (always True when it runs later: a failure
+        is then shown when it arrives, and the design stays).
+        """
+        before = self._point()
+        placed = []
+
+        def take_over(placement) -> None:
+            placed.append(placement)
+            if live:
+                self.history.live_step(before)
+            else:
+                self.history.accepted(before, self._point())
+                self._sync_history_depths()
             self.placement_summary = f"{placement.method}. {placement.note}".strip()
-        return accepted
+            words = note
+            if not placement.accurate:
+                words = " ".join(n for n in (note, "The poles could only be placed approximately:", placement.note) if n)
+            self._after_gain_change(words, live)
+
+        self._failure = None
+        self._request_evaluation(self.refresh.step() if live else self.refresh.release(), targets=targets,
+                                 on_placed=take_over)
+        if self._failure is not None:  # delivered at once, and refused
+            failure, self._failure = self._failure, None
+            raise failure
+        return bool(placed) or not getattr(self.runner, "synchronous", False)
 
     # -- accepted changes ----------------------------------------------------------------------
 

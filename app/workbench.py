@@ -29,7 +29,8 @@ import panel as pn
 from gainboard import core
 
 from .autosave import AutosaveStore
-from .refresh_policy import PLOT_VIEWS, RefreshPolicy, detail_options
+from .evaluation_pool import PooledRunner, shared_pool
+from .refresh_policy import PLOT_VIEWS, Detail, RefreshPolicy, detail_options
 from .robustness_state import SAMPLING_CAUTION, RobustnessState
 from .room_link import RoomLink
 from .rooms import ROOM_PARAMETER
@@ -45,8 +46,8 @@ from .views.estimator_panel import EstimatorPanel
 from .views.estimator_responses import EstimatorResponses
 from .views.estimator_sliders import EstimatorSliders
 from .views.file_panel import FilePanel
-from .views.gain_sliders import GainSliders
-from .views.keyboard import TabKeys
+from .views.gain_matrix import GainEntries
+from .views.keyboard import NudgeKeys, TabKeys
 from .views.lqr_panel import LqrPanel
 from .views.page_header import PageHeader
 from .views.plant_panel import PlantPanel
@@ -70,6 +71,8 @@ _LIVE_LOCK = threading.Lock()
 TAB_HEIGHT = 590
 #: Height of the K readout and history buttons above the gain entries.
 GAIN_BAR_HEIGHT = 150
+#: An evaluation still running after this many seconds is reported to the user.
+EVALUATION_BUDGET_SECONDS = 10.0
 
 log = logging.getLogger(__name__)
 
@@ -118,7 +121,8 @@ class Workbench:
         self.page_header = PageHeader(state, on_restore=self.restore_offered, on_discard=self.discard_offered)
         self.pole_map = PoleMap(state, self.scheduler)
         self.entry_choice = EntryChoice(state, on_fit=self.pole_map.fit_view)
-        self.sliders = GainSliders(state, self.scheduler)
+        self.gains = GainEntries(state, self.scheduler)
+        self.sliders = self.gains.sliders  # one slider per entry (small K); the matrix is self.gains.matrix
         self.design_bar = DesignBar(state)
         self.responses = ResponsePlots(state)
         self.pole_table = PoleTable(state)
@@ -139,7 +143,8 @@ class Workbench:
             "response_plots": lambda evaluation: self.responses.refresh(evaluation, texts=False),
             "response_texts": self.responses.refresh_texts,
             "entry_choice": self.entry_choice.refresh,
-            "sliders": self.sliders.refresh,
+            "sliders": self.gains.refresh,
+            "slider_values": self.gains.refresh_values,
             "design_bar": self.design_bar.refresh,
             "pole_table": self.pole_table.refresh,
             "checks": self.checks.refresh,
@@ -161,18 +166,24 @@ class Workbench:
         self.robust_panel.show_response_band(self.responses.kind_name)
         self.robust.param.watch(self._on_robustness, ["revision", "result", "result_is_current"])
         if document is not None:
+            # Served: the tables wait for a pause, and every evaluation runs off the event loop.
             state.refresh = served_refresh_policy()
+            state.runner = PooledRunner(shared_pool(), self.run_in_session, on_overdue=self._evaluation_overdue,
+                                        budget=EVALUATION_BUDGET_SECONDS, call_later=self._call_later)
 
         state.param.watch(self._on_evaluation, "evaluation")
         state.param.watch(self._on_comparison, ["pinned", "lqr_poles"])
         state.param.watch(self._on_message, ["message", "message_kind"])
         state.param.watch(self._on_committed, "committed")
         self.panel = self._layout()
-        self._on_evaluation()
+        self._on_evaluation(every_view=True)
         self._on_message()
         self._show_autosave_note("Your design is saved here after every change you make.")
         if document is not None:
             document.on_session_destroyed(lambda context: self.close())
+            # A page may open with a quick first evaluation (see open_session): the complete one
+            # runs off the event loop once the page is shown.
+            pn.state.onload(lambda: self._guarded(self.state.complete))
 
     @property
     def nickname(self) -> str:
@@ -195,7 +206,7 @@ class Workbench:
         gains = pn.Column(
             self.design_bar.panel,
             label("gain entries"),
-            scrolling(self.sliders.panel, 370, TAB_HEIGHT - GAIN_BAR_HEIGHT),
+            scrolling(self.gains.panel, 370, TAB_HEIGHT - GAIN_BAR_HEIGHT),
             margin=0, width=370,
         )
         left = pn.Tabs(
@@ -221,8 +232,10 @@ class Workbench:
             ("Robust", scrolling(self.robust_panel.panel, 478)),
             width=480, margin=(0, 5), dynamic=False,
         )
+        nudges = NudgeKeys(on_nudge=self._nudge, on_end=self.state.end_gesture, width=0, height=0, margin=0)
         return pn.Column(
             TabKeys(width=0, height=0, margin=0),
+            nudges,
             *self.page_header.panels,
             pn.Row(left, centre, right, margin=0),
             margin=0,
@@ -244,11 +257,14 @@ class Workbench:
             f"Something went wrong ({type(error).__name__}: {error}); the design was kept as it was.", "error"
         )
 
-    def _on_evaluation(self, *events) -> None:
-        """Redraw what the level of detail of the evaluation shown redraws (see refresh_policy)."""
+    def _on_evaluation(self, *events, every_view: bool = False) -> None:
+        """Redraw what the level of detail of the evaluation shown redraws (see refresh_policy).
+
+        ``every_view``: the page is being built, so every view draws what it has.
+        """
         evaluation = self.state.evaluation
         # Without a browser there is no layout work to spare: every view follows every evaluation.
-        plots_only = detail_options(self.state.detail).plots_only and self.document is not None
+        plots_only = detail_options(self.state.detail).plots_only and self.document is not None and not every_view
         names = PLOT_VIEWS if plots_only else self._views.keys()
         with pn.io.hold():
             for name in names:
@@ -280,6 +296,10 @@ class Workbench:
 
         self.document.add_timeout_callback(catch_up, max(1, int(1000 * due)))
 
+    def _nudge(self, row: int, col: int, steps: int, coarse: bool) -> None:
+        # Not through the latest-only scheduler: each press counts, from the value the last one left.
+        self._guarded(lambda: self.state.nudge_entry(row, col, steps, coarse=coarse))
+
     def _on_comparison(self, *events) -> None:
         evaluation = self.state.evaluation
         with pn.io.hold():
@@ -309,6 +329,16 @@ class Workbench:
             in_own_document()
         else:
             document.add_next_tick_callback(in_own_document)
+
+    def _call_later(self, seconds: float, function) -> None:
+        """Run ``function`` in this session after ``seconds`` (from this session's own loop)."""
+        self.document.add_timeout_callback(lambda: self.run_in_session(function, at_once=True),
+                                           max(1, int(1000 * seconds)))
+
+    def _evaluation_overdue(self, request) -> None:
+        self.state.show_message(
+            f"This design has taken more than {EVALUATION_BUDGET_SECONDS:g} s to evaluate (a large plant?); "
+            "the page shows the last design evaluated and follows as soon as the evaluation ends.", "note")
 
     def _guarded(self, function) -> None:
         try:
@@ -505,7 +535,11 @@ def open_session(plant, *, plant_label: str = "", plant_text: str = "", argument
         except core.GainboardError as error:
             problem = f"Could not open the snapshot link: {error}"
     if state is None:
-        state = DesignState(plant, plant_label=plant_label, plant_text=plant_text)
+        # Quick at first (poles, locus, responses: no margins, no all-entry intervals) so that the
+        # page is built fast inside the HTTP request; the workbench completes it off the loop on load.
+        served = pn.state.curdoc is not None and pn.state.curdoc.session_context is not None
+        state = DesignState(plant, plant_label=plant_label, plant_text=plant_text,
+                            first_detail=Detail.STEP if served else Detail.COMPLETE)
     nickname = clean_display_name(user or "") if user and user != "guest" else ""
     nickname = nickname or clean_display_name(_argument(arguments, NAME_PARAMETER))
     workbench = Workbench(state, autosave=AutosaveStore() if autosave else None, nickname=nickname)

@@ -30,7 +30,7 @@ from ._single_entry import _all_entry_intervals, _checked_entry_views, _sensitiv
 from ._spec_checks import check_specs, pole_region
 from ._specs import DesignSpecs
 from ._structure import StructureReport, _fixed_flags, analyze_structure, controllability_staircase
-from ._view_ranges import ViewRanges, view_ranges
+from ._view_ranges import ViewRanges, view_ranges, with_entry_margins
 
 __all__ = ["EvaluationOptions", "DesignEvaluation", "evaluate_design", "with_all_entry_intervals"]
 
@@ -280,7 +280,7 @@ def evaluate_design(plant: Plant, gain, options: EvaluationOptions | None = None
         view_ranges=view_ranges(
             plant, K, open_loop_poles=open_loop.poles, closed_loop_poles=closed_loop.poles, selected_entry=selected,
             sensitivity=sensitivity, pole_region=region, responses=responses, reference_poles=options.reference_poles,
-            previous=options.previous_view, gesture=options.gesture,
+            previous=options.previous_view, gesture=options.gesture, entry_intervals=intervals,
         ),
     )
 
@@ -314,4 +314,5 @@ def with_all_entry_intervals(evaluation: DesignEvaluation) -> DesignEvaluation:
         return evaluation
     selected = evaluation.selected_entry
     known = {} if selected is None else {selected: evaluation.selected_intervals}
-    return replace(evaluation, entry_intervals=_all_entry_intervals(evaluation.plant, evaluation.gain, known))
+    intervals = _all_entry_intervals(evaluation.plant, evaluation.gain, known)
+    return replace(evaluation, entry_intervals=intervals, view_ranges=with_entry_margins(evaluation.view_ranges, intervals))

@@ -22,6 +22,10 @@ Rules (one place for all of them):
   outlined over a square twice the frame (kept at least as large as before during
   a gesture). Sensitivity arrows have a fixed on-screen length, a fraction of the
   frame's height: they show direction only (their size would mix units).
+- **Stable margins.** For each entry whose exact stable intervals are known, how far
+  its value may move (either way, others fixed) before the loop loses stability,
+  relative to the value's own size: ``EntryMargin.relative`` (∞ when no finite end
+  bounds the interval; None when the value is unstable or moves no pole).
 - **Responses.** Each response's time axis ends at a whole step past its last
   sample, value axes cover every trace padded by 4 %; during a gesture they only
   grow, and the next evaluation outside a gesture fits them to the data again.
@@ -30,7 +34,7 @@ Rules (one place for all of them):
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Mapping
 
 import numpy as np
@@ -42,16 +46,26 @@ __all__ = [
     "PoleFrame",
     "ResponseAxes",
     "ViewRanges",
+    "EntryMargin",
+    "entry_margins",
+    "with_entry_margins",
     "ONE_SLIDER_PER_ENTRY_UP_TO",
     "round_up_to_nice",
     "slider_step",
+    "nudged_value",
+    "FINE_NUDGE",
+    "COARSE_NUDGE",
     "view_ranges",
 ]
 
 #: Up to this many entries of K every entry gets a slider (and so a range).
-ONE_SLIDER_PER_ENTRY_UP_TO = 10**9  # every entry, until the workbench shows a large K as a matrix
+ONE_SLIDER_PER_ENTRY_UP_TO = 6
 #: Slider steps across a range (about; the step is rounded to 1-2-5).
 STEPS_PER_RANGE = 400
+#: An arrow key moves an entry by this fraction of its own value (common practice, no source) ...
+FINE_NUDGE = 1e-3
+#: ... and by this fraction with the coarse modifier (Shift, or Page Up / Page Down).
+COARSE_NUDGE = 1e-2
 #: Outside a gesture, a slider range is renewed when the value is this close (fraction) to an end.
 EDGE_FRACTION = 0.04
 #: Width : height of the pole map's frame (its pixel size in the workbench: 395 × 375).
@@ -120,6 +134,29 @@ class ResponseAxes:
         )
 
 
+@dataclass(frozen=True)
+class EntryMargin:
+    """How far one entry may move before the loop loses stability (the others fixed).
+
+    Attributes
+    ----------
+    stable : bool
+        Whether the current K gives a stable loop.
+    has_effect : bool
+        False when the entry moves no pole.
+    distance : float
+        Distance from the value to the nearer end of its stable interval (∞ if unbounded; 0 when unstable).
+    relative : float or None
+        ``distance`` over the larger of |value| and the entry's natural scale; None when
+        unstable or without effect.
+    """
+
+    stable: bool
+    has_effect: bool
+    distance: float
+    relative: float | None
+
+
 @dataclass(frozen=True, eq=False)
 class ViewRanges:
     """Everything a view of an evaluation needs to scale its drawing.
@@ -136,6 +173,8 @@ class ViewRanges:
         Start and end points (complex) of the selected entry's sensitivity arrows.
     responses : mapping of str to ResponseAxes
         Axes per response kind present ("initial", "step", "disturbance").
+    margins : mapping of (row, col) to EntryMargin
+        Stable margins of the entries whose exact intervals were computed (see :func:`entry_margins`).
     """
 
     sliders: Mapping[tuple[int, int], SliderRange]
@@ -143,6 +182,48 @@ class ViewRanges:
     region_outline: tuple = ()
     arrows: tuple = field(default_factory=lambda: (np.zeros(0, complex), np.zeros(0, complex)))
     responses: Mapping[str, ResponseAxes] = field(default_factory=dict)
+    margins: Mapping[tuple[int, int], EntryMargin] = field(default_factory=dict)
+
+
+def entry_margins(entry_intervals: Mapping) -> dict:
+    """The stable margin of every entry in ``entry_intervals`` (``(row, col) -> StableIntervals``).
+
+    The size a distance is measured against is the larger of |value| and the entry's
+    natural scale (the change at which its feedback term is as large as the plant; a
+    billion times its crossing tolerance, see :class:`StableIntervals`), so an entry at
+    zero is not "infinitely far" from a nearby edge.
+
+    Examples
+    --------
+    >>> from gainboard.core import Plant, entry_stable_intervals
+    >>> plant = Plant(A=[[0.0, 1.0, 0.0], [0.0, 0.0, 1.0], [-1.0, -5.0, -6.0]], B=[[0.0], [0.0], [1.0]])
+    >>> margin = entry_margins({(0, 0): entry_stable_intervals(plant, [[199.0, 55.0, 8.0]], 0, 0)})[(0, 0)]
+    >>> margin.stable, round(margin.distance, 6), round(margin.relative, 4)
+    (True, 200.0, 0.9557)
+    """
+    margins = {}
+    for entry, intervals in entry_intervals.items():
+        value = float(intervals.current_value)
+        if not intervals.entry_has_effect or not intervals.current_is_stable:
+            margins[entry] = EntryMargin(stable=bool(intervals.current_is_stable),
+                                         has_effect=bool(intervals.entry_has_effect), distance=0.0, relative=None)
+            continue
+        distance = math.inf
+        for low, high in intervals.intervals:
+            if low < value < high or (low <= value <= high):
+                distance = min(value - low, high - value)
+                break
+        size = max(abs(value), 1e9 * float(intervals.gain_tolerance), 1e-300)
+        margins[entry] = EntryMargin(stable=True, has_effect=True, distance=float(distance),
+                                     relative=float(distance / size))
+    return margins
+
+
+def with_entry_margins(ranges: ViewRanges | None, entry_intervals: Mapping) -> ViewRanges | None:
+    """``ranges`` with the stable margins of ``entry_intervals`` (after they were completed)."""
+    if ranges is None:
+        return None
+    return replace(ranges, margins=entry_margins(entry_intervals))
 
 
 def round_up_to_nice(value: float, factors=(1.0, 2.0, 2.5, 5.0)) -> float:
@@ -175,6 +256,32 @@ def slider_step(span: float) -> float:
     (2.0, 5.0, 0.001)
     """
     return round_up_to_nice(span / STEPS_PER_RANGE, factors=(1.0, 2.0, 5.0))
+
+
+def nudged_value(value: float, slider_range: SliderRange | None, steps: int, coarse: bool = False) -> float:
+    """The value after ``steps`` arrow-key presses (negative: down): a relative step from the value itself.
+
+    A press moves the value by FINE_NUDGE (coarse: COARSE_NUDGE) of its own size, never
+    to the slider's grid, so a value typed to many digits keeps them. A value within
+    round-off of zero (a millionth of the slider's span), which a relative step would
+    never move, moves by a tenth of a slider step instead (coarse: one step).
+
+    Examples
+    --------
+    >>> nudged_value(-248.949, None, 1)
+    -248.700051
+    >>> nudged_value(-248.949, SliderRange(-6000.0, 5000.0, 50.0), -1, coarse=True)
+    -251.43849
+    >>> nudged_value(0.0, SliderRange(-5.0, 5.0, 0.05), 1)
+    0.005
+    """
+    if slider_range is not None and abs(value) <= 1e-6 * (slider_range.high - slider_range.low):
+        step = slider_range.step * (1.0 if coarse else 0.1)
+    else:
+        size = abs(value) if value != 0.0 else 1.0
+        step = (COARSE_NUDGE if coarse else FINE_NUDGE) * size
+    # 12 significant digits of the step: −248.949 + 0.248949 is −248.700051, not …0510000001
+    return float(f"{value + steps * float(f'{step:.12g}'):.15g}")
 
 
 def _whole_steps(low: float, high: float, step: float) -> tuple[float, float]:
@@ -275,7 +382,7 @@ def _response_axes(response) -> ResponseAxes:
 
 def view_ranges(plant, gain, *, open_loop_poles, closed_loop_poles, selected_entry=None, sensitivity=None,
                 pole_region=None, responses=None, reference_poles=(), previous: ViewRanges | None = None,
-                gesture: bool = False) -> ViewRanges:
+                gesture: bool = False, entry_intervals: Mapping | None = None) -> ViewRanges:
     """Slider ranges, the pole-map frame with the spec region and arrows, and the response axes.
 
     Parameters
@@ -297,6 +404,8 @@ def view_ranges(plant, gain, *, open_loop_poles, closed_loop_poles, selected_ent
         The ranges shown before, for the same plant (None after a plant change).
     gesture : bool
         True during a drag: ranges are kept (sliders) or only grow (responses).
+    entry_intervals : mapping, optional
+        ``(row, col) -> StableIntervals`` known for this K (their stable margins are given).
 
     Returns
     -------
@@ -341,4 +450,5 @@ def view_ranges(plant, gain, *, open_loop_poles, closed_loop_poles, selected_ent
         region_outline=outline,
         arrows=_arrows(sensitivity, frame),
         responses=axes,
+        margins=entry_margins(entry_intervals or {}),
     )

@@ -114,6 +114,20 @@ def test_quick_drag_steps_leave_intervals_out_until_the_pause_or_the_release(ref
     assert set(state.evaluation.entry_intervals) == {(0, 0), (0, 1), (0, 2)}
 
 
+def test_arrow_nudges_move_one_entry_by_relative_steps_and_a_burst_is_one_undo_step(state, reference_plant):
+    for _ in range(3):
+        assert state.nudge_entry(0, 0, 1)
+    assert state.nudge_entry(0, 0, -1, coarse=True)
+    expected = 199.0 * 1.001 ** 3  # three fine presses up (a thousandth each), from where each left it
+    expected -= float(f"{0.01 * expected:.12g}")  # one coarse press down
+    assert state.gain[0, 0] == pytest.approx(expected, rel=1e-12)
+    np.testing.assert_array_equal(state.gain[0, 1:], REFERENCE_GAIN[0][1:])
+    assert matched_distance(state.evaluation.closed_loop.poles, eig_closed_loop(reference_plant, state.gain)) < 1e-9
+    state.end_gesture()
+    assert state.undo_depth == 1 and state.undo()
+    np.testing.assert_array_equal(state.gain, REFERENCE_GAIN)
+
+
 def test_a_new_change_after_undo_clears_the_redo_history(state):
     state.set_entry(0, 1, 60.0)
     state.undo()

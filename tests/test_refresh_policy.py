@@ -122,7 +122,7 @@ def test_each_level_computes_a_superset_of_the_one_below_and_steps_redraw_the_pl
     assert not step.include_all_entry_intervals and not step.include_margins and step.plots_only
     assert pause.include_all_entry_intervals and not pause.include_margins and not pause.plots_only
     assert complete.include_all_entry_intervals and complete.include_margins and not complete.gesture
-    assert PLOT_VIEWS == {"pole_map", "response_plots", "estimator_responses"}  # the plots, the estimator's too
+    assert PLOT_VIEWS == {"pole_map", "response_plots", "estimator_responses", "slider_values"}
 
 
 # -- the design state evaluates at the level the policy gives ----------------------------------------

@@ -125,3 +125,17 @@ def test_response_axes_hold_the_data_and_only_grow_during_a_gesture(reference_pl
     grown = back.view_ranges.responses["initial"]
     assert grown.time_end == slow.view_ranges.responses["initial"].time_end  # kept while the drag goes on
     assert fitted.view_ranges.responses["initial"] == fast.view_ranges.responses["initial"]
+
+
+def test_an_arrow_nudge_is_a_small_step_relative_to_the_value_not_to_the_slider_grid():
+    # Issue 13 item 5: a thousandth of the value per press, a hundredth with the coarse modifier
+    # (the project's own rule); a value at zero moves by a tenth of a slider step (coarse: one).
+    grid = core.SliderRange(-1000.0, 1000.0, 5.0)
+    assert core.nudged_value(-248.949, grid, 1) == pytest.approx(-248.949 + 0.248949, rel=1e-15)
+    assert core.nudged_value(-248.949, grid, -1, coarse=True) == pytest.approx(-248.949 - 2.48949, rel=1e-15)
+    assert core.nudged_value(0.0, grid, 1) == 0.5 and core.nudged_value(0.0, grid, -1, coarse=True) == -5.0
+    assert core.nudged_value(2.0, grid, 1) == pytest.approx(2.002, rel=1e-15)  # small but not zero: relative
+    value = -248.949
+    for _ in range(3):
+        value = core.nudged_value(value, grid, 1)
+    assert value == pytest.approx(-248.949 * (1 - 1e-3) ** 3, rel=1e-12)  # each press from where the last left it

@@ -15,11 +15,12 @@ from html import escape
 import numpy as np
 import panel as pn
 
+from ..refresh_policy import detail_options
 from ..scheduling import guarded
 from ..theme import PALETTE, entry_symbol, format_number
 from .html_box import HtmlBox
 
-__all__ = ["GainSliders", "PromptSlider", "EntryActions", "entry_units"]
+__all__ = ["GainSliders", "EntryControls", "PromptSlider", "EntryActions", "entry_units"]
 
 SLIDER_WIDTH = 320
 STRIP_HEIGHT = 10
@@ -50,7 +51,7 @@ def entry_units(plant, row: int, col: int) -> str:
 
 def _interval_text(symbol: str, intervals, scale: float = 0.0) -> str:
     if intervals is None:
-        return ""
+        return "exact stable range: computing…"
 
     def number(value):
         return format_number(value, scale=scale)
@@ -80,7 +81,9 @@ def interval_strip_svg(low: float, high: float, value: float, intervals, width: 
     def position(v: float) -> float:
         return min(max((v - low) / span * width, 0.0), float(width))
 
-    shapes = [f'<rect x="0" y="1" width="{width}" height="{STRIP_HEIGHT - 2}" fill="{PALETTE["interval_unstable"]}"/>']
+    # Without the exact intervals (a quick evaluation) the strip is neutral: never coloured by a guess.
+    base = PALETTE["interval_unstable"] if intervals is not None else PALETTE["rule"]
+    shapes = [f'<rect x="0" y="1" width="{width}" height="{STRIP_HEIGHT - 2}" fill="{base}"/>']
     if intervals is not None:
         for a, b in intervals.intervals:
             if b <= low or a >= high:
@@ -117,14 +120,21 @@ class EntryActions:
         self.number.param.watch(guard(self._typed), "value")
         self.locus_button.on_click(lambda event: select())
 
-    def _show_value(self, value: float, slider_range, selected: bool) -> None:
-        """The number box, the slider (range and position) and the locus button for ``value``."""
+    def show_number(self, value: float) -> None:
+        """Only the number box (during a gesture, see :meth:`_show_value`)."""
         if self.number.value is None or float(self.number.value) != value:
             self.number.value = value
+
+    def _show_value(self, value: float, slider_range, selected: bool) -> None:
+        """The number box, the slider (range and position) and the locus button for ``value``."""
+        self.show_number(value)
         low, high = slider_range.low, slider_range.high
         if self.slider.start != low or self.slider.end != high:
             self.slider.param.update(start=low, end=high, step=slider_range.step)
-        if float(self.slider.value) != value:
+        # Shown during a gesture, the handle stays where the user holds it: the design shown may be a
+        # step behind, and setting it would pull the handle back under the mouse (found with the
+        # browser benchmark: a drag stalled at its first reversal). It follows on release (complete).
+        if not detail_options(self.owner.state.detail).gesture and float(self.slider.value) != value:
             self.slider.value = min(max(value, low), high)
         self.locus_button.color = "primary" if selected else "light"
 
@@ -150,13 +160,20 @@ class EntryActions:
         self.apply(value)
 
 
-class _EntryControls(EntryActions):
-    """Widgets of one gain entry."""
+class EntryControls(EntryActions):
+    """Widgets of one gain entry: name and units, number box, locus button, slider and stable strip.
 
-    def __init__(self, owner: "GainSliders", row: int, col: int):
+    ``owner`` gives ``state``, ``scheduler``, ``css`` and the ``syncing`` flag (set while the
+    owner shows an evaluation, so that the widgets' own echoes are not taken as input).
+    The large slider of the matrix view is one of these, moved between entries by
+    :meth:`retarget`.
+    """
+
+    def __init__(self, owner, row: int, col: int, *, slider_width: int = SLIDER_WIDTH):
         self.owner, self.row, self.col = owner, row, col
         symbol = entry_symbol(row, col)
         self.symbol = symbol
+        self.slider_width = slider_width
         self.label = pn.pane.HTML("", width=160, margin=(2, 4, 0, 4), stylesheets=[owner.css])
         self.number = pn.widgets.FloatInput(
             value=0.0, width=122, margin=(2, 4), label="", css_classes=[f"gb-number-{row + 1}-{col + 1}"],
@@ -165,13 +182,13 @@ class _EntryControls(EntryActions):
         self.locus_button = pn.widgets.Button(label="locus", color="light", width=56, margin=(2, 0),
                                               description=f"Show the locus of {symbol} on the pole map")
         self.slider = PromptSlider(
-            start=-1.0, end=1.0, value=0.0, step=0.01, show_value=False, label="", width=SLIDER_WIDTH,
+            start=-1.0, end=1.0, value=0.0, step=0.01, show_value=False, label="", width=slider_width,
             margin=(0, 4, 0, 8), css_classes=[f"gb-slider-{row + 1}-{col + 1}"], bar_color=PALETTE["closed_loop"],
         )
-        self.strip = HtmlBox(css=owner.css, width=SLIDER_WIDTH + 10, margin=(0, 4, 0, 8),
+        self.strip = HtmlBox(css=owner.css, width=slider_width + 10, margin=(0, 4, 0, 8),
                              css_classes=[f"gb-strip-{row + 1}-{col + 1}"])
         # for a plant family: the values stable at every operating point (empty otherwise)
-        self.common_strip = HtmlBox(css=owner.css, width=SLIDER_WIDTH + 10, margin=(0, 4, 0, 8),
+        self.common_strip = HtmlBox(css=owner.css, width=slider_width + 10, margin=(0, 4, 0, 8),
                                     css_classes=[f"gb-common-strip-{row + 1}-{col + 1}"])
         self.panel = pn.Column(
             pn.Row(self.label, self.number, self.locus_button, margin=0),
@@ -181,7 +198,18 @@ class _EntryControls(EntryActions):
             margin=(2, 0, 6, 0),
             css_classes=["gb-entry"],
         )
-        self._connect(lambda: owner.state.select_entry(row, col))
+        self._connect(lambda: owner.state.select_entry(self.row, self.col))
+
+    def retarget(self, row: int, col: int) -> None:
+        """Show entry (row, col) from now on (the tests and the key listener find it by its classes)."""
+        if (row, col) == (self.row, self.col):
+            return
+        self.owner.scheduler.discard(self.key)
+        self.row, self.col, self.symbol = row, col, entry_symbol(row, col)
+        self.number.css_classes = [f"gb-number-{row + 1}-{col + 1}"]
+        self.slider.css_classes = [f"gb-slider-{row + 1}-{col + 1}"]
+        self.strip.panel.css_classes = [f"gb-strip-{row + 1}-{col + 1}"]
+        self.locus_button.description = f"Show the locus of {self.symbol} on the pole map"
 
     # user actions: only ever set state (see EntryActions)
 
@@ -213,7 +241,7 @@ class _EntryControls(EntryActions):
             badge = ('<span class="gb-pass">✓ stable now</span> · ' if intervals.current_is_stable
                      else '<span class="gb-fail">✗ unstable now</span> · ')
         self.strip.object = (
-            f'<div>{interval_strip_svg(low, high, value, intervals)}</div>'
+            f'<div>{interval_strip_svg(low, high, value, intervals, self.slider_width)}</div>'
             f'<div class="gb-interval-text">{badge}{text}</div>'
         )
 
@@ -240,15 +268,30 @@ class GainSliders:
         self.state = state
         self.scheduler = scheduler
         self.syncing = False
-        self._controls: dict[tuple[int, int], _EntryControls] = {}
+        self._controls: dict[tuple[int, int], EntryControls] = {}
         self._shape = None
         self.panel = pn.Column(margin=0, sizing_mode="stretch_width")
 
     def _build(self, shape) -> None:
         m, n = shape
-        self._controls = {(i, j): _EntryControls(self, i, j) for i in range(m) for j in range(n)}
+        self._controls = {(i, j): EntryControls(self, i, j) for i in range(m) for j in range(n)}
         self.panel.objects = [c.panel for c in self._controls.values()]
         self._shape = shape
+
+    def refresh_values(self, evaluation) -> None:
+        """Only the values of K in the number boxes, during a gesture (the handles and strips follow on a pause).
+
+        A handle is not moved here: during a drag the evaluation shown may lag the mouse, and
+        setting the slider would pull the handle back under it.
+        """
+        if evaluation.gain.shape != self._shape:
+            return
+        self.syncing = True
+        try:
+            for (i, j), controls in self._controls.items():
+                controls.show_number(float(evaluation.gain[i, j]))
+        finally:
+            self.syncing = False
 
     def show_common(self, common) -> None:
         """Under each slider, the values stable at every operating point of a plant family (None: none)."""

@@ -475,7 +475,8 @@ class PoleMap:
         self.scheduler.discard("drag")
         self._drag = None
         self.state.drag_pole(target, live=False, snap_distance=self._snap_distance())
-        self._set_closed_poles(self.state.evaluation)  # also restores the marker if the drop was refused
+        if not self.state.evaluating:  # else the evaluation of the drop, or its refusal, redraws them
+            self._set_closed_poles(self.state.evaluation)  # also restores the marker if the drop was refused
         self._set_estimator_poles()
 
     def _on_pole_data(self, attr, old, new) -> None:

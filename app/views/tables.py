@@ -6,6 +6,7 @@ from html import escape
 
 import panel as pn
 
+from ..refresh_policy import detail_options
 from ..spec_rows import spec_check_rows
 from ..theme import TABLE_CSS, format_complex, format_number
 from .html_box import HtmlBox
@@ -128,7 +129,11 @@ class ChecksTable:
             html.append('<table class="gb-table gb-specs"><tr><th>spec</th><th>required</th><th>achieved</th>'
                         "<th>result</th></tr>" + rows + "</table>")
         html.append('<div class="gb-heading">margins (loop broken at the plant input)</div>')
-        html.append(_margins_html(evaluation.margins))
+        if evaluation.margins is None and detail_options(self.state.detail).gesture:
+            html.append('<div class="gb-note">Margins follow when the design is complete '
+                        '(on release, or a moment after the page opens).</div>')
+        else:
+            html.append(_margins_html(evaluation.margins))
         self.pane.object = "".join(html)
 
 

@@ -555,20 +555,21 @@ def print_case(case: Case) -> None:
 # Browser round trip
 # ---------------------------------------------------------------------------
 def _run_latency(arguments: list[str]) -> dict | None:
-    """Run browser_latency.py with ``arguments``; parse its (median, 95th percentile) in ms per gesture."""
+    """Run browser_latency.py with ``arguments``; parse its (median, 95th percentile) in ms per page and gesture."""
     completed = subprocess.run([sys.executable, str(HERE / "browser_latency.py"), *arguments],
-                               capture_output=True, text=True, timeout=600)
+                               capture_output=True, text=True, timeout=1200)
     print("  " + completed.stdout.strip().replace("\n", "\n  "))
     if completed.returncode != 0:
         print("  failed: " + completed.stderr.strip().splitlines()[-1] if completed.stderr.strip() else "  failed")
         return None
-    found = {}
+    found, page = {}, None
     for line in completed.stdout.splitlines():
-        match = re.search(r"median (\d+(?:\.\d+)?) ms, 95th percentile (\d+(?:\.\d+)?) ms", line)
-        if match and line.startswith("slider drag"):
-            found["drag"] = (float(match.group(1)), float(match.group(2)))
-        elif match and line.startswith("slider key"):
-            found["key"] = (float(match.group(1)), float(match.group(2)))
+        if not line.startswith(" ") and line.endswith(":"):
+            page = line[:-1]
+            continue
+        match = re.search(r"^\s+([a-z ]+): \d+ steps, median (\d+(?:\.\d+)?) ms, 95th percentile (\d+(?:\.\d+)?) ms", line)
+        if match and page is not None:
+            found.setdefault(page, {})[match.group(1)] = (float(match.group(2)), float(match.group(3)))
     return found or None
 
 
@@ -576,20 +577,18 @@ def browser_round_trip(plant_name: str, moves: int) -> dict | None:
     """Slider-to-redraw latency of the workbench on a bundled plant and of the floor page (ms).
 
     The floor (floor_app.py: one slider redrawing one plot) is timed the same way in
-    the same run; the result's "floor" entry holds its numbers.
+    the same run; the result's "floor" entry holds its slider-drag numbers.
     """
     if not (HERE / "browser_latency.py").exists() or not Path("/usr/bin/chromium").exists():
         print("\nbrowser round trip: skipped (browser_latency.py or /usr/bin/chromium missing)")
         return None
     print(f"\nbrowser round trip ({moves} slider moves), floor page first:", flush=True)
-    floor = _run_latency(["--floor", "--moves", str(moves)])
-    found = _run_latency([plant_name, "--moves", str(moves)])
-    if found is not None and floor is not None and "drag" in floor and "drag" in found:
-        found["floor"] = floor["drag"]
-        (median, p95), (floor_median, floor_p95) = found["drag"], floor["drag"]
-        print(f"  workbench drag against the floor: median {median / floor_median:.1f}×, "
-              f"95th percentile {p95 / floor_p95:.1f}×")
-    return found
+    pages = _run_latency([plant_name, "--moves", str(moves)])
+    if not pages or plant_name not in pages or "floor page" not in pages:
+        return None
+    found = {"drag": pages[plant_name].get("slider drag"), "key": pages[plant_name].get("arrow keys"),
+             "floor": pages["floor page"].get("slider drag")}
+    return found if found["drag"] and found["floor"] else None
 
 
 # ---------------------------------------------------------------------------
