@@ -16,12 +16,6 @@ actuator limits and a working emergency stop.
 from __future__ import annotations
 
 import importlib
-from importlib.metadata import PackageNotFoundError, version
-
-try:
-    __version__ = version("gainboard")
-except PackageNotFoundError:  # pragma: no cover - running from a source tree that was never installed
-    __version__ = "0+unknown"
 
 #: Public name -> module that defines it (loaded on first access; see ``__getattr__``).
 _PUBLIC_NAMES = {}
@@ -29,7 +23,20 @@ _PUBLIC_NAMES = {}
 __all__ = ["__version__", *_PUBLIC_NAMES]
 
 
+def _installed_version() -> str:
+    """The version of the installed distribution (package metadata, the one source of the number)."""
+    from importlib.metadata import PackageNotFoundError, version
+
+    try:
+        return version("gainboard")
+    except PackageNotFoundError:  # pragma: no cover - a source tree that was never installed
+        return "0+unknown"
+
+
 def __getattr__(name: str):
+    if name == "__version__":  # read on demand: importlib.metadata alone costs ~50 ms at start-up
+        globals()["__version__"] = _installed_version()
+        return globals()["__version__"]
     module = _PUBLIC_NAMES.get(name)
     if module is None:
         raise AttributeError(f"module 'gainboard' has no attribute {name!r}")
