@@ -18,7 +18,42 @@ from __future__ import annotations
 import importlib
 
 #: Public name -> module that defines it (loaded on first access; see ``__getattr__``).
-_PUBLIC_NAMES = {}
+_PUBLIC_NAMES = {
+    # plants and specs
+    "Plant": "gainboard.core",
+    "DesignSpecs": "gainboard.core",
+    "plant_from_arrays": "gainboard._arrays",
+    "load_plant_file": "gainboard.core",
+    "load_specs_file": "gainboard.core",
+    "load_bundled_plant": "gainboard.sample_plants",
+    "bundled_plant_files": "gainboard.sample_plants",
+    # design
+    "assign_poles": "gainboard._verbs",
+    "design_lqr": "gainboard.core",
+    "bryson_weights": "gainboard.core",
+    # analysis
+    "EvaluationOptions": "gainboard.core",
+    "evaluate_design": "gainboard._verbs",
+    "entry_stable_intervals": "gainboard._verbs",
+    "entry_locus": "gainboard.core",
+    "simulate_responses": "gainboard.core",
+    # results
+    "Assignment": "gainboard._results",
+    "Evaluation": "gainboard._results",
+    "EntryIntervals": "gainboard._results",
+    # design files and export
+    "Design": "gainboard.app.design_file",
+    "save_design": "gainboard.app.design_file",
+    "load_design": "gainboard.app.design_file",
+    "export_design": "gainboard.app.export",
+    "export_gain": "gainboard._verbs",
+    "EXPORT_FORMATS": "gainboard.app.export",
+    # errors
+    "GainboardError": "gainboard.core",
+    "PlantError": "gainboard.core",
+    # the notebook workbench (needs the [app] extra)
+    "workbench": "gainboard._notebook",
+}
 
 __all__ = ["__version__", *_PUBLIC_NAMES]
 

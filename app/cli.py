@@ -17,6 +17,7 @@ from pathlib import Path
 
 import numpy as np
 
+import gainboard
 from gainboard import core
 
 from . import cli_estimator, cli_output
@@ -141,9 +142,9 @@ def _save_design_if_asked(args, plant: core.Plant, gain: np.ndarray, notes: str)
 
 def command_assign(args) -> int:
     plant = resolve_plant(args.plant)
-    result = core.assign_poles(plant, parse_pole_list(args.poles))
+    result = gainboard.assign_poles(plant, parse_pole_list(args.poles))
     _save_design_if_asked(args, plant, result.gain, f"Poles assigned by {result.method}: {args.poles}")
-    cli_output.emit(cli_output.assignment_record(plant, result), args.json, cli_output.assignment_table)
+    cli_output.emit(result.to_dict(), args.json, cli_output.assignment_table)
     return 0
 
 
@@ -161,8 +162,8 @@ def command_evaluate(args) -> int:
         specs=specs,
         include_all_entry_intervals=False,
     )
-    evaluation = core.evaluate_design(plant, gain, options)
-    record = cli_output.evaluation_record(evaluation, specs_given=specs is not None)
+    evaluation = gainboard.evaluate_design(plant, gain, options)
+    record = evaluation.to_dict()
     cli_estimator.add_compensator_to_evaluation(args, plant, evaluation, record)
     cli_output.emit(record, args.json, cli_estimator.evaluation_table)
     spec_report = evaluation.spec_report
@@ -173,10 +174,10 @@ def command_sweep(args) -> int:
     plant = resolve_model(args)
     gain = parse_gain(args.gain, plant)
     row, col = parse_entry(args.entry, plant)
-    intervals = core.entry_stable_intervals(plant, gain, row, col)
+    intervals = gainboard.entry_stable_intervals(plant, gain, row, col)
     low, high = parse_range(args.range) if args.range else core.default_entry_range(plant, gain, row, col)
     locus = core.entry_locus(plant, gain, row, col, low, high)
-    record = cli_output.sweep_record(plant, gain, (row, col), intervals, locus)
+    record = intervals.to_dict(locus)
     cli_output.emit(record, args.json, cli_output.sweep_table)
     return 0
 
