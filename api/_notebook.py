@@ -2,9 +2,10 @@
 
 from __future__ import annotations
 
+import functools
 import sys
 
-__all__ = ["workbench", "NotebookWorkbench"]
+__all__ = ["workbench"]
 
 
 def _panel():
@@ -49,14 +50,18 @@ def workbench(plant, gain=None, specs=None) -> "NotebookWorkbench":
         pn.config.raw_css = [*pn.config.raw_css, PAGE_CSS]
     if "ipykernel" in sys.modules:
         pn.extension()
-    return NotebookWorkbench(plant, gain=gain, specs=specs)
+    return notebook_workbench_class()(plant, gain=gain, specs=specs)
 
 
-def _viewer_base():
-    return _panel().viewable.Viewer
+@functools.cache
+def notebook_workbench_class():
+    """The class of :func:`workbench`'s result, made on first use: importing Panel (and pyviz_comms,
+    which sets an environment variable) waits until a workbench is asked for."""
+    return type("NotebookWorkbench", (_NotebookWorkbenchMethods, _panel().viewable.Viewer), {
+        "__doc__": _NotebookWorkbenchMethods.__doc__, "__module__": __name__})
 
 
-class NotebookWorkbench(_viewer_base()):
+class _NotebookWorkbenchMethods:
     """One workbench (one design state) as a Panel viewer; see :func:`workbench`."""
 
     def __init__(self, plant, gain=None, specs=None, **params):
