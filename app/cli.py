@@ -83,7 +83,8 @@ def plant_from_text(text: str, source: str) -> core.Plant:
     from .export import GAIN_EXPORT_FORMAT
 
     if data.get("format") == DESIGN_FORMAT:
-        return design_from_json(text, source).plant
+        design = design_from_json(text, source)
+        return design.plant.with_changes(specs=design.effective_specs)  # gate on the design's own specs
     if data.get("format") == GAIN_EXPORT_FORMAT:
         raise UsageError(f"{source} is an exported gain file, not a plant; give it with --gain")
     return core.plant_from_mapping(data, source)
