@@ -32,6 +32,9 @@ def notebook_server():
 def test_a_slider_move_in_the_notebook_workbench_updates_the_poles(browser, notebook_server):
     context = browser.new_context(viewport=VIEWPORT)
     tab = WorkbenchPage(context.new_page(), notebook_server)
+    # Unlike `gainboard serve`, the notebook workbench evaluates the design completely while the page
+    # is built (no quick first pass off the event loop), so a first load on a busy machine takes longer.
+    tab.page.set_default_navigation_timeout(120_000)
     try:
         tab.open()
         tab.screenshot("notebook-workbench-01-open")
