@@ -26,6 +26,7 @@ import logging
 import socket
 import sys
 
+from .autosave import default_autosave_folder, remove_old_autosaves
 from .access import AccessSettings, WorkbenchLogin, access_settings, is_loopback, share_url
 from .request_guard import guard_application
 
@@ -184,6 +185,10 @@ def build_server(plant_path: str | None, *, address: str = "127.0.0.1", port: in
     if port == 0:
         port = pick_free_port(address)
     this_server = server_key(address, port)
+    try:
+        remove_old_autosaves(default_autosave_folder())  # designs untouched for KEEP_DAYS days
+    except OSError as error:
+        log.warning("could not clean up old autosaves: %s", error)
 
     def session():
         # Panel shows any exception escaping this function as a page with the full traceback (server
