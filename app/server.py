@@ -27,7 +27,7 @@ import socket
 import sys
 
 from .autosave import default_autosave_folder, remove_old_autosaves
-from .access import AccessSettings, WorkbenchLogin, access_settings, is_loopback, share_url
+from .access import AccessSettings, WorkbenchLogin, access_settings, is_loopback, name_from_cookie, share_url
 from .request_guard import guard_application
 
 __all__ = ["serve_workbench", "build_server", "pick_free_port", "workbench_url", "allowed_origins",
@@ -228,7 +228,7 @@ def open_session_safely(plant, *, plant_label: str, plant_text: str, access: Acc
 
     try:
         arguments = dict(pn.state.session_args or {})
-        user = pn.state.user if access is not None else None
+        user = name_from_cookie(pn.state.user) if access is not None else None  # "<sign-in id>.<name>"
         return open_session(plant, plant_label=plant_label, plant_text=plant_text, arguments=arguments, user=user,
                             autosave_key=(server, autosave_owner(user, pn.state.cookies)))
     except Exception as error:  # the last guard: open_session already falls back to the server's plant
