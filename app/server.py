@@ -29,6 +29,7 @@ import sys
 from .autosave import default_autosave_folder, remove_old_autosaves
 from .access import AccessSettings, WorkbenchLogin, access_settings, is_loopback, name_from_cookie, share_url
 from .request_guard import guard_application
+from .upload_guard import guard_uploads
 
 __all__ = ["serve_workbench", "build_server", "pick_free_port", "workbench_url", "allowed_origins",
            "MAX_MESSAGE_BYTES"]
@@ -194,6 +195,7 @@ def build_server(plant_path: str | None, *, address: str = "127.0.0.1", port: in
         # Panel shows any exception escaping this function as a page with the full traceback (server
         # paths included); open_session_safely never lets one escape.
         page = open_session_safely(plant, plant_label=label, plant_text=text, access=access, server=this_server)
+        guard_uploads(pn.state.curdoc)  # the upload size limit, checked in the page before sending
         gc.collect()  # see keep_garbage_collection_short: the page's own objects, once, while it loads
         return page
 
