@@ -43,14 +43,14 @@ def complex_pairs(values) -> list:
 
 
 def printable(text: str) -> str:
-    """``text`` safe to print on a terminal: control and format characters written as escapes.
+    r"""``text`` safe to print on a terminal: control and format characters written as escapes.
 
     Names, units and notes come from plant and design files, which anyone may write; an
     ESC (or another C0/C1 control character) could move the cursor, recolour or rewrite
     earlier lines, and a bidirectional override could show text in another order than it
     is (the "Trojan Source" trick). Every character of Unicode category Cc (controls) or
     Cf (format: bidi overrides and isolates, zero-width characters) except newline and tab
-    is written as ``\\xNN`` or ``\\uNNNN``.
+    is written as ``\xNN`` or ``\uNNNN``.
 
     Examples
     --------
