@@ -146,6 +146,11 @@ def main(argv=None) -> int:
     sessions = max(1, min(args.sessions, 40))
     duration = max(10.0, min(args.duration, 120.0))
 
+    sys.stdout.reconfigure(line_buffering=True)  # progress lines survive an interrupted run
+    # Bokeh's Python client handles each queued message in a nested call (client/connection.py _next ->
+    # states.run -> _handle_messages -> _next); on a heavily loaded machine a client that falls behind
+    # exceeds Python's default depth of 1000 (seen here at load average 12). Only the clients are affected.
+    sys.setrecursionlimit(20_000)
     register_workbench_models()
     server = RunningServer("cart_pendulum")
     errors: list[str] = []
@@ -166,6 +171,7 @@ def main(argv=None) -> int:
             alone.client.close()
         errors += alone.errors
         single = [latency for _, latency in alone.changes]
+        print(line("single session: change latency", single))
 
         # 2. many sessions, opened one after another while the earlier ones work
         stop = threading.Event()
@@ -173,6 +179,7 @@ def main(argv=None) -> int:
         for changer in changers:
             changer.start()
             changer.opened.wait(60)
+        print(line(f"{sessions} sessions: time to open", [c.open_seconds for c in changers if c.open_seconds]))
         steady_start = time.monotonic()
         time.sleep(duration)
         steady_end = time.monotonic()
