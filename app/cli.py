@@ -444,7 +444,7 @@ def main(argv: list[str] | None = None) -> int:
     try:
         return args.handler(args)
     except (UsageError, core.GainboardError) as error:
-        print(f"gainboard {args.command}: {error}", file=sys.stderr)
+        print(cli_output.printable(f"gainboard {args.command}: {error}"), file=sys.stderr)  # names from files
         return 2
     except KeyboardInterrupt:
         return 130

@@ -10,6 +10,7 @@ import dataclasses
 import json
 import math
 import sys
+import unicodedata
 
 import numpy as np
 
@@ -41,13 +42,43 @@ def complex_pairs(values) -> list:
     return [json_value(complex(v)) for v in np.ravel(values)]
 
 
+def printable(text: str) -> str:
+    r"""``text`` safe to print on a terminal: control and format characters written as escapes.
+
+    Names, units and notes come from plant and design files, which anyone may write; an
+    ESC (or another C0/C1 control character) could move the cursor, recolour or rewrite
+    earlier lines, and a bidirectional override could show text in another order than it
+    is (the "Trojan Source" trick). Every character of Unicode category Cc (controls) or
+    Cf (format: bidi overrides and isolates, zero-width characters) except newline and tab
+    is written as ``\xNN`` or ``\uNNNN``.
+
+    Examples
+    --------
+    >>> printable("cart\x1b[2J pendulum\u202e")
+    'cart\\x1b[2J pendulum\\u202e'
+    >>> printable("two\nlines")
+    'two\nlines'
+    """
+    def shown(ch: str) -> str:
+        if ch in "\n\t" or unicodedata.category(ch) not in ("Cc", "Cf"):
+            return ch
+        code = ord(ch)
+        return f"\\x{code:02x}" if code < 0x100 else f"\\u{code:04x}" if code < 0x10000 else f"\\U{code:08x}"
+
+    return "".join(shown(ch) for ch in text)
+
+
 def emit(record: dict, as_json: bool, table) -> None:
-    """Print ``record`` as JSON, or as the readable table made by ``table(record)``."""
+    """Print ``record`` as JSON, or as the readable table made by ``table(record)``.
+
+    JSON is written with ``ensure_ascii`` (every control and non-ASCII character as a
+    ``\\u`` escape, the json module's default); a table goes through :func:`printable`.
+    """
     if as_json:
         json.dump(json_value(record), sys.stdout, indent=2, allow_nan=False)
         sys.stdout.write("\n")
     else:
-        sys.stdout.write(table(json_value(record)))
+        sys.stdout.write(printable(table(json_value(record))))
 
 
 def format_number(value, digits: int = 6) -> str:
