@@ -37,6 +37,7 @@ import scipy.optimize
 
 from ._errors import AnalysisError
 from ._plant import Plant
+from ._single_entry import gain_factor_intervals
 
 __all__ = ["SingleLoopMargins", "LoopMargins", "loop_margins", "frequency_response"]
 
@@ -375,6 +376,32 @@ def _is_stable(matrix: np.ndarray, sample_time: float | None) -> bool:
     return bool(np.max(poles.real) < -1e3 * n * _EPS * scale)
 
 
+def _exact_gain_margins(closed, b, k, sample_time) -> tuple[float, float, list[float]]:
+    """Gain margins from the exact stable range of the factor α in u = −α·k·x, and the phase crossovers.
+
+    The range comes from the structured eigenvalue problem of the rank-one family
+    A − α·b·k (:func:`gain_factor_intervals`), not from where a frequency sweep finds
+    L(jω) real: an integrating loop (a type-2 loop above all) is real only in the limit
+    ω → 0, where a sweep meets rounding and reports a huge false factor. The crossings
+    with α > 0 are where α·L = −1: the phase crossover frequencies.
+    """
+    analysis = gain_factor_intervals(closed, b, k, sample_time is not None)
+    around_one = [(low, high) for low, high in analysis.intervals if low < 1.0 < high]
+    if around_one:
+        low, high = around_one[0]
+        # a crossing within rounding of α = 0 is the plant's own pole on the boundary: no positive factor
+        increase, decrease = high, (low if low > analysis.gain_tolerance else 0.0)
+    else:  # α = 1 sits on a crossing: no margin at all (the nominal check let it through by rounding)
+        increase = decrease = 1.0
+    frequencies = []
+    for crossing in analysis.crossings:
+        if crossing.gain <= analysis.gain_tolerance:
+            continue  # α ≤ 0 is no gain change a loop can have; α → 0 of a plant pole on the boundary
+        frequency = crossing.frequency if sample_time is None else crossing.frequency / sample_time
+        frequencies.append(float(frequency))
+    return float(increase), float(decrease), _merge(frequencies, 0.0)
+
+
 def _single_loop(A, b, k, sample_time, index: int, name: str) -> SingleLoopMargins:
     """Margins of the scalar loop L = k (sI − A)⁻¹ b; assumes A − b k stable."""
     n = A.shape[0]
@@ -386,75 +413,34 @@ def _single_loop(A, b, k, sample_time, index: int, name: str) -> SingleLoopMargi
     identity, zeros = np.eye(n), np.zeros((n, n))
     column, row = b.reshape(n, 1), k.reshape(1, n)
     zero_column, zero_row = np.zeros((n, 1)), np.zeros((1, n))
-    selector = np.zeros((2 * n + 1, 2 * n + 1))
-    selector[: 2 * n, : 2 * n] = np.eye(2 * n)
 
-    # L(s) − L(−s) = 0 (sampled: L(z) − L(1/z) = 0) ⇔ L real on the boundary.
-    # Unknowns (x1, x2, u): x1 = (pI − A)⁻¹ b u, x2 the mirrored loop, k x1 − k x2 = 0.
-    # Gain crossover: 1 − L(−s)L(s) = 0 ⇔ |L| = 1, same unknowns with x2 driven by k x1.
+    # Gain crossover: 1 − L(−s)L(s) = 0 (sampled: 1 − L(1/z)L(z) = 0) ⇔ |L| = 1 on the boundary.
+    # Unknowns (x1, x2, u): x1 = (pI − A)⁻¹ b u, x2 the mirrored loop driven by k x1, k x2 = u.
     if sample_time is None:
-        real_M0 = np.block([[A, zeros, column], [zeros, -A, -column], [row, -row, np.zeros((1, 1))]])
-        real_M1 = selector
+        selector = np.zeros((2 * n + 1, 2 * n + 1))
+        selector[: 2 * n, : 2 * n] = np.eye(2 * n)
         unit_M0 = np.block([[A, zeros, column], [-column @ row, -A, zero_column], [zero_row, row, -np.ones((1, 1))]])
         unit_M1 = selector
     else:
-        real_M0 = np.block([[A, zeros, column], [zeros, identity, zero_column], [row, -row, np.zeros((1, 1))]])
-        real_M1 = np.block([[identity, zeros, zero_column], [zeros, A, column], [zero_row, zero_row, np.zeros((1, 1))]])
         unit_M0 = np.block([[A, zeros, column], [zeros, identity, zero_column], [zero_row, row, -np.ones((1, 1))]])
         unit_M1 = np.block([[identity, zeros, zero_column], [column @ row, A, zero_column],
                             [zero_row, zero_row, np.zeros((1, 1))]])
 
     loop = lambda omega: _scalar_loop(A, b, k, omega, sample_time)  # noqa: E731
 
-    def imaginary_part(omega):
-        values = loop(omega)
-        return np.where(np.isfinite(values), values.imag, np.nan)
-
     def magnitude_excess(omega):
         values = loop(omega)
         return np.where(np.isfinite(values), np.abs(values) ** 2 - 1.0, np.nan)
-
-    def is_real_crossing(omega):
-        value = loop(omega)[0]
-        return bool(np.isfinite(value) and value != 0 and abs(value.imag) <= _CHECK_TOLERANCE * abs(value))
 
     def is_unit_crossing(omega):
         value = loop(omega)[0]
         return bool(np.isfinite(value) and abs(abs(value) ** 2 - 1.0) <= _CHECK_TOLERANCE * (1 + abs(value) ** 2))
 
-    real_candidates = _pencil_frequencies(_finite_pencil_eigenvalues(real_M0, real_M1), sample_time, scale)
-    # L is real at ω = 0 and (sampled) at the Nyquist frequency by symmetry; no bracket exists there.
-    endpoints = [0.0] if sample_time is None else [0.0, upper]
-    real_frequencies = _merge(
-        _crossing_frequencies(imaginary_part, real_candidates, grid, is_real_crossing, upper, floor)
-        + [w for w in endpoints if is_real_crossing(w)],
-        floor,
-    )
     unit_candidates = _pencil_frequencies(_finite_pencil_eigenvalues(unit_M0, unit_M1), sample_time, scale)
     unit_frequencies = _crossing_frequencies(magnitude_excess, unit_candidates, grid, is_unit_crossing, upper,
                                              floor)
 
-    # Gain margins: each real crossing gives a factor α = −1/L at which αL = −1.
-    factors, phase_crossovers = [], []
-    boundary_scale = max(scale, 1.0) if sample_time is not None else scale
-    for omega in real_frequencies:
-        value = loop(omega)[0]
-        factor = -1.0 / value.real
-        if factor <= 0:
-            continue
-        # Confirm on the closed loop itself: A − αbk has a pole on the boundary at this frequency.
-        target = _boundary_points(np.array([omega]), sample_time)[0]
-        distance = np.min(np.abs(np.linalg.eigvals(A - factor * np.outer(b, k)) - target))
-        if distance > 1e-5 * max(boundary_scale * max(factor, 1.0), abs(target)):
-            continue
-        factors.append(factor)
-        phase_crossovers.append(omega)
-    above = [f for f in factors if f > 1.0]
-    below = [f for f in factors if f < 1.0]
-    increase = min(above) if above else math.inf
-    decrease = max(below) if below else 0.0
-    # A plant pole on the boundary makes α → 0 a crossing too: decrease stays 0 then.
-
+    increase, decrease, phase_crossovers = _exact_gain_margins(closed, b, k, sample_time)
     phase_margin, crossover, delay = math.inf, None, math.inf
     for omega in unit_frequencies:
         value = loop(omega)[0]

@@ -969,6 +969,20 @@ def scaled_gain_locus(plant: Plant, K, low: float = 0.0, high: float = 2.0) -> S
     )
 
 
+def gain_factor_intervals(closed_loop: np.ndarray, input_column: np.ndarray, gain_row: np.ndarray,
+                          sampled: bool) -> StableIntervals:
+    """Exact stable intervals of the factor α in A1 − (α − 1)·b·k, where A1 = ``closed_loop`` (α = 1).
+
+    One actuator loop u = −α·k·x with the loop matrix at α = 1 given: the same exact
+    structured method as :func:`entry_stable_intervals` (``entry`` is (−1, −1)). Loop
+    margins read their gain margins from it: crossings at ω → 0 of an integrating loop are
+    exact here, where a frequency sweep only sees rounding.
+    """
+    family = rank_one_family(np.asarray(closed_loop, dtype=float), np.asarray(input_column, dtype=float),
+                             np.asarray(gain_row, dtype=float), 1.0, sampled)
+    return _intervals_from_family(family, (-1, -1), "the loop's gain factor", lambda: "")
+
+
 def _sampled_crossings(plant: Plant, feedback: np.ndarray, values: np.ndarray, poles: np.ndarray):
     """Crossings of A − α·B·K located by bisection where the unstable count changes."""
     sampled = plant.is_sampled
