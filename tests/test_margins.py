@@ -9,6 +9,7 @@ import mpmath
 import numpy as np
 import pytest
 import scipy.linalg
+import scipy.optimize
 import scipy.signal
 import sympy as sp
 from hypothesis import assume, given, settings
@@ -344,3 +345,40 @@ def test_type_two_loop_gain_margin_below_one_matches_routh_hurwitz():
     high = math.inf if region.end == sp.oo else float(region.end)
     assert margins.gain_margin_decrease == pytest.approx(low, rel=1e-12, abs=0)
     assert margins.gain_margin_increase == pytest.approx(high, rel=1e-12)
+
+
+def _cart_chain(carts: int, rng):
+    """Carts joined by springs and light dampers, pushed at the first cart (a demo scenario of our own)."""
+    masses = rng.uniform(0.5, 2.0, carts)
+    stiffness = np.zeros((carts, carts))
+    damping = np.zeros((carts, carts))
+    for j in range(carts - 1):
+        for matrix, value in ((stiffness, rng.uniform(0.5, 4.0)), (damping, rng.uniform(0.01, 0.1))):
+            matrix[j:j + 2, j:j + 2] += value * np.array([[1.0, -1.0], [-1.0, 1.0]])
+    A = np.block([[np.zeros((carts, carts)), np.eye(carts)],
+                  [-stiffness / masses[:, None], -damping / masses[:, None]]])
+    B = np.zeros((2 * carts, 1))
+    B[carts, 0] = 1.0 / masses[0]
+    return A, B
+
+
+def test_gain_crossovers_equal_an_independent_dense_sweep(rng):
+    # Reference: a per-frequency numpy.linalg.solve of (jωI − A) x = b on a 4 000-point log grid and
+    # scipy.optimize.brentq on |L|² − 1 (independent of the shared sweep, the pencil and the modal form).
+    A, B = _cart_chain(6, rng)
+    K = B.T @ scipy.linalg.solve_continuous_are(A, B, np.eye(12), np.eye(1))  # LQR gain (scipy)
+    margins = loop_margins(Plant(A=A, B=B), K)
+
+    def loop(omega):
+        return complex(K[0] @ np.linalg.solve(1j * omega * np.eye(12) - A, B[:, 0]))
+
+    grid = np.geomspace(1e-3, 1e3, 4000)
+    excess = np.array([abs(loop(w)) ** 2 - 1 for w in grid])
+    reference = [scipy.optimize.brentq(lambda w: abs(loop(w)) ** 2 - 1, grid[j], grid[j + 1], xtol=1e-300,
+                                       rtol=1e-15)
+                 for j in np.flatnonzero(excess[:-1] * excess[1:] < 0)]
+    assert len(reference) >= 1
+    assert margins.loop_at_a_time[0].gain_crossover_frequencies == pytest.approx(tuple(reference), rel=1e-9)
+    # the phase margin is read at the reference crossover with the smallest distance to −1
+    angles = [abs(180.0 - abs(math.degrees(np.angle(loop(w))))) for w in reference]
+    assert margins.phase_margin_deg == pytest.approx(min(angles), abs=1e-7)
