@@ -72,6 +72,7 @@ def naive_crossings(A: np.ndarray, B: np.ndarray, K: np.ndarray):
     magnitudes = magnitudes[magnitudes > 0]
     grid = np.geomspace(magnitudes.min() / 1e3, magnitudes.max() * 1e3, GRID_POINTS)
     identity = np.eye(n)
+    slowest = np.abs(np.linalg.eigvals(closed)).min()
     results = []
     for i in range(B.shape[1]):
         others = closed + np.outer(B[:, i], K[i])
@@ -95,9 +96,9 @@ def naive_crossings(A: np.ndarray, B: np.ndarray, K: np.ndarray):
             if imaginary[j] * imaginary[j + 1] < 0:
                 root = scipy.optimize.brentq(lambda w: loop(w).imag, grid[j], grid[j + 1], xtol=1e-300,
                                              rtol=8 * np.finfo(float).eps)
-                # Below 1e-6 of the slowest nonzero pole a root of Im L is the ω → 0 artefact of an
+                # Below 1e-6 of the slowest closed-loop pole a root of Im L is the ω → 0 artefact of an
                 # integrating loop (issue 11 item 2: a huge false factor −1/L), not a crossover.
-                if loop(root).real < 0 and root > 1e-6 * magnitudes.min():
+                if loop(root).real < 0 and root > 1e-6 * slowest:
                     phase_crossovers.append(root)
         results.append((gain_crossovers, phase_crossovers))
     return results
