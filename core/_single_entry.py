@@ -49,6 +49,7 @@ from ._single_entry_family import (
     family_from_reduction,
     gain_tolerance,
     margin_tolerance,
+    moving_poles_in_blocks,
     rank_one_family,
     reduce_input,
     unstable_count,
@@ -334,10 +335,10 @@ def _poles_and_counts_each(families, value_lists) -> list[tuple[np.ndarray, np.n
         if family.order:
             by_order.setdefault(family.order, []).append(position)
     for o, members in by_order.items():
-        matrices = np.concatenate([families[p].moving_closed_loop(value_lists[p]) for p in members])
-        moving = np.linalg.eigvals(matrices)
+        # in blocks of bounded size (memory O(o²) per block, not one stack of every probe)
+        moving, norms = moving_poles_in_blocks([families[p] for p in members], [value_lists[p] for p in members])
         # margin_tolerance for each matrix at once: 100·o·eps·max(‖M‖_F, eps)
-        tolerances = 100.0 * max(o, 1) * _EPS * np.maximum(np.linalg.norm(matrices, axis=(1, 2)), _EPS)
+        tolerances = 100.0 * max(o, 1) * _EPS * np.maximum(norms, _EPS)
         start = 0
         for p in members:
             stop = start + value_lists[p].size
@@ -744,19 +745,28 @@ def all_entry_stable_intervals(plant: Plant, K) -> dict[tuple[int, int], StableI
     return _all_entry_intervals(plant, plant.check_gain(K), {})
 
 
+#: Matrix entries held by the families analysed together in :func:`_all_entry_intervals` (2²¹: 16 MiB of floats).
+_FAMILY_GROUP_ENTRIES = 2**21
+
+
 def _all_entry_intervals(plant: Plant, gain: np.ndarray, known: dict) -> dict[tuple[int, int], StableIntervals]:
     """:func:`all_entry_stable_intervals` taking the entries in ``known`` as given (checked gain)."""
     closed_loop = plant.A - plant.B @ gain
-    jobs = []
-    for row in range(plant.input_count):
-        reduction = None
-        for col in range(plant.state_count):
-            if (row, col) in known:
-                continue
-            if reduction is None:
-                reduction = reduce_input(closed_loop, plant.B[:, row])
-            jobs.append(_family_job(plant, _entry_family(plant, gain, row, col, reduction, closed_loop), row, col))
-    analysed = dict(zip([job[1] for job in jobs], _intervals_from_families(jobs)))
+    n = plant.state_count
+    wanted = [(row, col) for row in range(plant.input_count) for col in range(n) if (row, col) not in known]
+    # Entries go through in groups whose families hold a bounded number of matrix entries in all
+    # (each family keeps an o×o matrix, o ≤ n): memory O(n²) times a fixed group size, not O(m·n³).
+    # Families of a group share batched LAPACK calls; every entry's numbers are those it gets alone.
+    group = max(1, _FAMILY_GROUP_ENTRIES // (n * n))
+    reductions: dict[int, object] = {}
+    analysed = {}
+    for start in range(0, len(wanted), group):
+        jobs = []
+        for row, col in wanted[start:start + group]:
+            if row not in reductions:
+                reductions[row] = reduce_input(closed_loop, plant.B[:, row])
+            jobs.append(_family_job(plant, _entry_family(plant, gain, row, col, reductions[row], closed_loop), row, col))
+        analysed.update(zip([job[1] for job in jobs], _intervals_from_families(jobs)))
     return {(row, col): known[(row, col)] if (row, col) in known else analysed[(row, col)]
             for row in range(plant.input_count) for col in range(plant.state_count)}
 
