@@ -422,6 +422,10 @@ def _quick_probe(family: RankOneFamily, exact_points: list[BoundaryPoint]) -> tu
     v0 = family.current_value
     gains = _merge_gains(family, [p.gain for p in exact_points])
     reach = _piece_reach(family, gains)
+    if gains and _changes_are_exact(family, exact_points, gains):
+        # every crossing is well-conditioned and v0 is on none: the count at v0 is carried across
+        # them (see _carried_counts); the far ends verify it. No count of the pieces themselves.
+        return gains, np.array([v0, gains[0] - 10 * reach, gains[-1] + 10 * reach]), 0
     if gains:
         representatives = [gains[0] - reach] + [0.5 * (a + b) for a, b in zip(gains[:-1], gains[1:])] + [gains[-1] + reach]
         far = [gains[0] - 10 * reach, gains[-1] + 10 * reach]
@@ -429,6 +433,45 @@ def _quick_probe(family: RankOneFamily, exact_points: list[BoundaryPoint]) -> tu
         representatives = [v0]
         far = [v0 - 10 * reach, v0 - reach, v0 + reach, v0 + 10 * reach]
     return gains, np.array([v0] + representatives + far), len(representatives)
+
+
+def _changes_are_exact(family: RankOneFamily, exact_points: list[BoundaryPoint], gains: list[float]) -> bool:
+    """True when the count change across every crossing gain is known exactly and v0 lies on none."""
+    v0 = family.current_value
+    if any(abs(v0 - gain) <= gain_tolerance(family, gain) for gain in gains):
+        return False
+    return all(_expected_change(family, exact_points, gain) is not None for gain in gains)
+
+
+def _carried_counts(family: RankOneFamily, exact_points: list[BoundaryPoint], gains: list[float], current: int,
+                    far_counts) -> list[int] | None:
+    """Piece counts carried from the count at v0 across the exact crossings; None if the far ends disagree.
+
+    Across a well-conditioned crossing the count changes by the crossing directions
+    (:func:`_expected_change`): exact, so one eigenvalue call at v0 fixes every piece. The
+    counts far out on both unbounded ends, computed independently, must equal the carried
+    ones (and no count may leave 0..n); a crossing the structured method missed breaks that.
+    """
+    changes = [_expected_change(family, exact_points, gain) for gain in gains]
+    start = sum(1 for gain in gains if gain < family.current_value)  # the piece holding v0
+    counts = [0] * (len(gains) + 1)
+    counts[start] = current
+    for k in range(start, len(gains)):
+        counts[k + 1] = counts[k] + changes[k]
+    for k in range(start - 1, -1, -1):
+        counts[k] = counts[k + 1] - changes[k]
+    size = family.state_count
+    if not all(0 <= c <= size for c in counts) or counts[0] != int(far_counts[0]) or counts[-1] != int(far_counts[1]):
+        return None
+    return counts
+
+
+def _full_probe(family: RankOneFamily, gains: list[float]) -> tuple[list[float], np.ndarray, int]:
+    """:func:`_quick_probe`'s values with one representative per piece (no counts carried)."""
+    reach = _piece_reach(family, gains)
+    representatives = [gains[0] - reach] + [0.5 * (a + b) for a, b in zip(gains[:-1], gains[1:])] + [gains[-1] + reach]
+    far = [gains[0] - 10 * reach, gains[-1] + 10 * reach]
+    return gains, np.array([family.current_value] + representatives + far), len(representatives)
 
 
 def _classify_pieces(family: RankOneFamily, exact_points: list[BoundaryPoint], probe=None, quick=None):
@@ -449,6 +492,14 @@ def _classify_pieces(family: RankOneFamily, exact_points: list[BoundaryPoint], p
         probe = _quick_probe(family, exact_points)
         _, quick = _poles_and_counts(family, probe[1])
     gains, _, piece_count = probe
+    if piece_count == 0 and gains:
+        counts = _carried_counts(family, exact_points, gains, int(quick[0]), quick[1:])
+        if counts is not None:
+            return gains, counts, bool(quick[0] == 0), []
+        # the carried counts do not meet the far ends: count every piece, as without carrying
+        probe = _full_probe(family, gains)
+        _, quick = _poles_and_counts(family, probe[1])
+        gains, _, piece_count = probe
     counts = [int(c) for c in quick[1 : 1 + piece_count]]
     far_counts = quick[1 + piece_count :]
     consistent = (
