@@ -111,26 +111,33 @@ def assignment_table(record: dict) -> str:
 # -- sweep -------------------------------------------------------------------------------------
 
 
-def sweep_record(plant, gain, entry, intervals, locus) -> dict:
+def sweep_record(plant, gain, entry, intervals, locus=None) -> dict:
+    """The record of ``gainboard sweep``; ``intervals`` is a :class:`gainboard.EntryIntervals` (snapped ends).
+
+    ``"entry"`` counts from 1 as in k_ij; ``"locus"`` is there only when a locus is given.
+    """
     row, col = entry
-    return {
+    record = {
         "plant": plant.name,
         "entry": [row + 1, col + 1],
         "entry_label": f"k{row + 1}{col + 1}: {plant.input_names[row]} from {plant.state_names[col]}",
         "current_value": float(gain[row, col]),
         "current_is_stable": intervals.current_is_stable,
-        "stable_intervals": [[low, high] for low, high in intervals.intervals],
+        "stable_intervals": [[low, high] for low, high in intervals.stable_intervals],
         "crossings": [
-            {"gain": crossing.gain, "point": json_value(complex(crossing.point))} for crossing in intervals.crossings
+            {"gain": value, "point": json_value(complex(crossing.point))}
+            for value, crossing in zip(intervals.crossing_gains, intervals.crossings)
         ],
         "never_stable_reason": intervals.never_stable_reason,
-        "locus": {
+    }
+    if locus is not None:
+        record["locus"] = {
             "gains": locus.gains,
             "poles": [complex_pairs(row_of_poles) for row_of_poles in locus.poles],
             "start_poles": complex_pairs(locus.start_poles),
             "end_poles": complex_pairs(locus.end_poles),
-        },
-    }
+        }
+    return record
 
 
 def sweep_table(record: dict) -> str:
