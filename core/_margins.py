@@ -36,7 +36,9 @@ import scipy.linalg
 import scipy.optimize
 
 from ._errors import AnalysisError
+from ._frequency_sweep import sweep_response
 from ._plant import Plant
+from ._single_entry import gain_factor_intervals
 
 __all__ = ["SingleLoopMargins", "LoopMargins", "loop_margins", "frequency_response"]
 
@@ -294,11 +296,12 @@ def _merge(values, floor: float, relative=1e-7) -> list[float]:
     return merged
 
 
-def _crossing_frequencies(function, candidates, grid, accept, upper, floor) -> list[float]:
+def _crossing_frequencies(function, candidates, grid, values, accept, upper, floor) -> list[float]:
     """Roots of ``function`` (a real function of ω) from candidates and a grid scan.
 
     Candidates (from a pencil) are polished by a bracketed root search when a
-    sign change is found nearby; grid sign changes that no candidate explains are
+    sign change is found nearby; sign changes of ``values`` (the function on ``grid``,
+    computed once for every loop by the shared sweep) that no candidate explains are
     added; every root must pass ``accept`` (the check against the defining equation).
     """
     def polish(low, high):
@@ -309,7 +312,8 @@ def _crossing_frequencies(function, candidates, grid, accept, upper, floor) -> l
             return None
 
     roots = []
-    for omega in candidates:
+    # the pencil gives each frequency twice (±ω, or ω and its mirror): polish each once
+    for omega in _merge(candidates, floor, relative=1e-9):
         if omega > upper * (1 + 1e-9):
             continue
         omega = min(omega, upper)
@@ -319,7 +323,6 @@ def _crossing_frequencies(function, candidates, grid, accept, upper, floor) -> l
         if np.isfinite(f_low) and np.isfinite(f_high) and f_low * f_high < 0:
             omega = polish(low, high) or omega
         roots.append(omega)
-    values = function(grid)
     # only the few grid intervals with a sign change between finite values are looked at
     with np.errstate(invalid="ignore", over="ignore"):
         changes = np.flatnonzero(np.isfinite(values[:-1]) & np.isfinite(values[1:]) & (values[:-1] * values[1:] < 0))
@@ -332,17 +335,21 @@ def _crossing_frequencies(function, candidates, grid, accept, upper, floor) -> l
     return [r for r in _merge(roots, floor) if accept(r)]
 
 
-def _frequency_grid(A: np.ndarray, closed: np.ndarray, sample_time: float | None) -> tuple[np.ndarray, float]:
-    """A dense grid of frequencies covering the dynamics, and the largest useful frequency."""
+def _frequency_grid(pole_sets, sample_time: float | None) -> tuple[np.ndarray, float]:
+    """A dense grid of frequencies covering the dynamics of every loop, and the largest useful frequency.
+
+    ``pole_sets`` holds the poles of the plant, of the closed loop and of each loop broken at one
+    input; their natural frequencies are on the grid, so a sharp resonance is never stepped over.
+    """
     if sample_time is not None:
         nyquist = math.pi / sample_time
         grid = np.unique(np.concatenate([nyquist * np.geomspace(1e-6, 1.0, 800), np.linspace(0, nyquist, 400)]))
         return grid, nyquist
-    magnitudes = np.abs(np.concatenate([np.linalg.eigvals(A), np.linalg.eigvals(closed)]))
+    poles = np.concatenate([np.asarray(p, dtype=complex) for p in pole_sets])
+    magnitudes = np.abs(poles)
     magnitudes = magnitudes[magnitudes > 0]
     low, high = (magnitudes.min() / 1e3, magnitudes.max() * 1e3) if magnitudes.size else (1e-3, 1e3)
-    natural = np.abs(np.concatenate([np.linalg.eigvals(A), np.linalg.eigvals(closed)]).imag)
-    grid = np.unique(np.concatenate([[0.0], np.geomspace(low, high, 1200), natural]))
+    grid = np.unique(np.concatenate([[0.0], np.geomspace(low, high, 1200), np.abs(poles.imag)]))
     return grid, math.inf
 
 
@@ -375,86 +382,77 @@ def _is_stable(matrix: np.ndarray, sample_time: float | None) -> bool:
     return bool(np.max(poles.real) < -1e3 * n * _EPS * scale)
 
 
-def _single_loop(A, b, k, sample_time, index: int, name: str) -> SingleLoopMargins:
-    """Margins of the scalar loop L = k (sI − A)⁻¹ b; assumes A − b k stable."""
+def _exact_gain_margins(closed, b, k, sample_time) -> tuple[float, float, list[float]]:
+    """Gain margins from the exact stable range of the factor α in u = −α·k·x, and the phase crossovers.
+
+    The range comes from the structured eigenvalue problem of the rank-one family
+    A − α·b·k (:func:`gain_factor_intervals`), not from where a frequency sweep finds
+    L(jω) real: an integrating loop (a type-2 loop above all) is real only in the limit
+    ω → 0, where a sweep meets rounding and reports a huge false factor. The crossings
+    with α > 0 are where α·L = −1: the phase crossover frequencies.
+    """
+    analysis = gain_factor_intervals(closed, b, k, sample_time is not None)
+    around_one = [(low, high) for low, high in analysis.intervals if low < 1.0 < high]
+    if around_one:
+        low, high = around_one[0]
+        # a crossing within rounding of α = 0 is the plant's own pole on the boundary: no positive factor
+        increase, decrease = high, (low if low > analysis.gain_tolerance else 0.0)
+    else:  # α = 1 sits on a crossing: no margin at all (the nominal check let it through by rounding)
+        increase = decrease = 1.0
+    frequencies = []
+    for crossing in analysis.crossings:
+        if crossing.gain <= analysis.gain_tolerance:
+            continue  # α ≤ 0 is no gain change a loop can have; α → 0 of a plant pole on the boundary
+        frequency = crossing.frequency if sample_time is None else crossing.frequency / sample_time
+        frequencies.append(float(frequency))
+    return float(increase), float(decrease), _merge(frequencies, 0.0)
+
+
+def _single_loop(A, b, k, sample_time, index: int, name: str, grid, upper, closed_values) -> SingleLoopMargins:
+    """Margins of the scalar loop L = k (sI − A)⁻¹ b; assumes A − b k stable.
+
+    ``closed_values`` is g = k (pI − A + b k)⁻¹ b on ``grid`` (the shared sweep of the closed loop);
+    L = g / (1 − g) there (Sherman–Morrison), so the grid costs nothing more per loop.
+    """
     n = A.shape[0]
     closed = A - np.outer(b, k)
-    grid, upper = _frequency_grid(A, closed, sample_time)
     # Frequencies below this are taken as 0 (rounding of a root at the origin).
     floor = 1e-9 * (grid[1] if grid[0] == 0 else grid[0])
     scale = np.linalg.norm(A, 2) + np.linalg.norm(b) * np.linalg.norm(k)
     identity, zeros = np.eye(n), np.zeros((n, n))
     column, row = b.reshape(n, 1), k.reshape(1, n)
     zero_column, zero_row = np.zeros((n, 1)), np.zeros((1, n))
-    selector = np.zeros((2 * n + 1, 2 * n + 1))
-    selector[: 2 * n, : 2 * n] = np.eye(2 * n)
 
-    # L(s) − L(−s) = 0 (sampled: L(z) − L(1/z) = 0) ⇔ L real on the boundary.
-    # Unknowns (x1, x2, u): x1 = (pI − A)⁻¹ b u, x2 the mirrored loop, k x1 − k x2 = 0.
-    # Gain crossover: 1 − L(−s)L(s) = 0 ⇔ |L| = 1, same unknowns with x2 driven by k x1.
+    # Gain crossover: 1 − L(−s)L(s) = 0 (sampled: 1 − L(1/z)L(z) = 0) ⇔ |L| = 1 on the boundary.
+    # Unknowns (x1, x2, u): x1 = (pI − A)⁻¹ b u, x2 the mirrored loop driven by k x1, k x2 = u.
     if sample_time is None:
-        real_M0 = np.block([[A, zeros, column], [zeros, -A, -column], [row, -row, np.zeros((1, 1))]])
-        real_M1 = selector
+        selector = np.zeros((2 * n + 1, 2 * n + 1))
+        selector[: 2 * n, : 2 * n] = np.eye(2 * n)
         unit_M0 = np.block([[A, zeros, column], [-column @ row, -A, zero_column], [zero_row, row, -np.ones((1, 1))]])
         unit_M1 = selector
     else:
-        real_M0 = np.block([[A, zeros, column], [zeros, identity, zero_column], [row, -row, np.zeros((1, 1))]])
-        real_M1 = np.block([[identity, zeros, zero_column], [zeros, A, column], [zero_row, zero_row, np.zeros((1, 1))]])
         unit_M0 = np.block([[A, zeros, column], [zeros, identity, zero_column], [zero_row, row, -np.ones((1, 1))]])
         unit_M1 = np.block([[identity, zeros, zero_column], [column @ row, A, zero_column],
                             [zero_row, zero_row, np.zeros((1, 1))]])
 
     loop = lambda omega: _scalar_loop(A, b, k, omega, sample_time)  # noqa: E731
 
-    def imaginary_part(omega):
-        values = loop(omega)
-        return np.where(np.isfinite(values), values.imag, np.nan)
-
     def magnitude_excess(omega):
         values = loop(omega)
         return np.where(np.isfinite(values), np.abs(values) ** 2 - 1.0, np.nan)
-
-    def is_real_crossing(omega):
-        value = loop(omega)[0]
-        return bool(np.isfinite(value) and value != 0 and abs(value.imag) <= _CHECK_TOLERANCE * abs(value))
 
     def is_unit_crossing(omega):
         value = loop(omega)[0]
         return bool(np.isfinite(value) and abs(abs(value) ** 2 - 1.0) <= _CHECK_TOLERANCE * (1 + abs(value) ** 2))
 
-    real_candidates = _pencil_frequencies(_finite_pencil_eigenvalues(real_M0, real_M1), sample_time, scale)
-    # L is real at ω = 0 and (sampled) at the Nyquist frequency by symmetry; no bracket exists there.
-    endpoints = [0.0] if sample_time is None else [0.0, upper]
-    real_frequencies = _merge(
-        _crossing_frequencies(imaginary_part, real_candidates, grid, is_real_crossing, upper, floor)
-        + [w for w in endpoints if is_real_crossing(w)],
-        floor,
-    )
     unit_candidates = _pencil_frequencies(_finite_pencil_eigenvalues(unit_M0, unit_M1), sample_time, scale)
-    unit_frequencies = _crossing_frequencies(magnitude_excess, unit_candidates, grid, is_unit_crossing, upper,
-                                             floor)
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        grid_loop = closed_values / (1.0 - closed_values)
+        grid_excess = np.where(np.isfinite(grid_loop), np.abs(grid_loop) ** 2 - 1.0, np.nan)
+    unit_frequencies = _crossing_frequencies(magnitude_excess, unit_candidates, grid, grid_excess, is_unit_crossing,
+                                             upper, floor)
 
-    # Gain margins: each real crossing gives a factor α = −1/L at which αL = −1.
-    factors, phase_crossovers = [], []
-    boundary_scale = max(scale, 1.0) if sample_time is not None else scale
-    for omega in real_frequencies:
-        value = loop(omega)[0]
-        factor = -1.0 / value.real
-        if factor <= 0:
-            continue
-        # Confirm on the closed loop itself: A − αbk has a pole on the boundary at this frequency.
-        target = _boundary_points(np.array([omega]), sample_time)[0]
-        distance = np.min(np.abs(np.linalg.eigvals(A - factor * np.outer(b, k)) - target))
-        if distance > 1e-5 * max(boundary_scale * max(factor, 1.0), abs(target)):
-            continue
-        factors.append(factor)
-        phase_crossovers.append(omega)
-    above = [f for f in factors if f > 1.0]
-    below = [f for f in factors if f < 1.0]
-    increase = min(above) if above else math.inf
-    decrease = max(below) if below else 0.0
-    # A plant pole on the boundary makes α → 0 a crossing too: decrease stays 0 then.
-
+    increase, decrease, phase_crossovers = _exact_gain_margins(closed, b, k, sample_time)
     phase_margin, crossover, delay = math.inf, None, math.inf
     for omega in unit_frequencies:
         value = loop(omega)[0]
@@ -494,7 +492,7 @@ def _largest_singular_values(A, B, C, D, frequencies) -> np.ndarray:
     return np.linalg.svd(values, compute_uv=False)[:, 0]
 
 
-def _peak_gain(A, B, C, D) -> tuple[float, float]:
+def _peak_gain(A, B, C, D, grid=None, values=None) -> tuple[float, float]:
     """‖G‖∞ of a stable continuous system and a frequency where it occurs (inf: at ω → ∞).
 
     A grid plus local refinement gives a lower bound γ; then the level-set test
@@ -505,8 +503,9 @@ def _peak_gain(A, B, C, D) -> tuple[float, float]:
     eigenvalues = np.linalg.eigvals(A)
     magnitudes = np.abs(eigenvalues)
     low, high = magnitudes.min() / 1e3, magnitudes.max() * 1e3
-    grid = np.unique(np.concatenate([[0.0], np.geomspace(low, high, 800), np.abs(eigenvalues.imag)]))
-    values = _largest_singular_values(A, B, C, D, grid)
+    if grid is None:
+        grid = np.unique(np.concatenate([[0.0], np.geomspace(low, high, 800), np.abs(eigenvalues.imag)]))
+        values = _largest_singular_values(A, B, C, D, grid)
     at_infinity = np.linalg.svd(D, compute_uv=False)[0]
     best = int(np.argmax(values))
     peak, peak_frequency = float(values[best]), float(grid[best])
@@ -547,12 +546,20 @@ def _peak_gain(A, B, C, D) -> tuple[float, float]:
     return peak, peak_frequency
 
 
-def _sensitivity_peak(A, B, K, sample_time) -> tuple[float, float]:
-    """‖S‖∞ for S = (I + L)⁻¹ = (A − BK, B, −K, I), with its frequency in rad/s."""
+def _sensitivity_peak(A, B, K, sample_time, grid, closed_values) -> tuple[float, float]:
+    """‖S‖∞ for S = (I + L)⁻¹ = (A − BK, B, −K, I), with its frequency in rad/s.
+
+    ``closed_values`` is G = K (pI − A + BK)⁻¹ B on ``grid`` (the shared sweep): S = I − G there,
+    which places the grid peak; the peak itself is refined and confirmed on exact solves.
+    """
     m = B.shape[1]
     closed = A - B @ K
+    sensitivity = np.eye(m)[None] - closed_values
+    grid_values = np.abs(sensitivity[:, 0, 0]) if m == 1 else np.linalg.svd(sensitivity, compute_uv=False)[:, 0]
+    keep = np.isfinite(grid_values)
+    grid, grid_values = grid[keep], grid_values[keep]
     if sample_time is None:
-        return _peak_gain(closed, B, -K, np.eye(m))
+        return _peak_gain(closed, B, -K, np.eye(m), grid, grid_values)
     # The bilinear map z = (1 + w)/(1 − w) takes the unit circle onto the imaginary
     # axis and keeps the peak gain: w = jν with ν = tan(ωT/2).
     n = A.shape[0]
@@ -561,7 +568,9 @@ def _sensitivity_peak(A, B, K, sample_time) -> tuple[float, float]:
     B_w = math.sqrt(2.0) * shifted[:, n:]
     C_w = math.sqrt(2.0) * np.linalg.solve((np.eye(n) + closed).T, -K.T).T
     D_w = np.eye(m) + K @ shifted[:, n:]
-    peak, nu = _peak_gain(A_w, B_w, C_w, D_w)
+    # the same grid in the bilinear variable ν = tan(ωT/2) (the Nyquist point, ν = ∞, is D_w's own check)
+    inside = grid * sample_time < math.pi * (1 - 1e-12)
+    peak, nu = _peak_gain(A_w, B_w, C_w, D_w, np.tan(grid[inside] * sample_time / 2.0), grid_values[inside])
     frequency = math.pi / sample_time if math.isinf(nu) else 2.0 * math.atan(nu) / sample_time
     return peak, frequency
 
@@ -616,12 +625,19 @@ def loop_margins(plant: Plant, K) -> LoopMargins:
                   "are not meaningful; stabilise the loop first. " + _CAUTION),
         )
 
-    loops = []
-    for i in range(m):
-        # Break loop i only: the other inputs stay closed and become part of the plant.
-        others = closed + np.outer(B[:, i], gain[i])
-        loops.append(_single_loop(others, B[:, i].copy(), gain[i].copy(), sample_time, i, plant.input_names[i]))
-    peak, peak_frequency = _sensitivity_peak(A, B, gain, sample_time)
+    # Break loop i only: the other inputs stay closed and become part of the plant.
+    broken = [closed + np.outer(B[:, i], gain[i]) for i in range(m)]
+    grid, upper = _frequency_grid([np.linalg.eigvals(matrix) for matrix in [A, closed] + broken[: m if m > 1 else 0]],
+                                  sample_time)
+    # One sweep of the stable closed loop, G = K (pI − A + BK)⁻¹ B, serves every loop and the
+    # sensitivity: loop i broken is G_ii / (1 − G_ii), and S = I − G.
+    closed_values = sweep_response(closed, B, gain).transfer(_boundary_points(grid, sample_time))
+    loops = [
+        _single_loop(broken[i], B[:, i].copy(), gain[i].copy(), sample_time, i, plant.input_names[i], grid, upper,
+                     closed_values[:, i, i])
+        for i in range(m)
+    ]
+    peak, peak_frequency = _sensitivity_peak(A, B, gain, sample_time, grid, closed_values)
     disk = min(1.0 / peak, 1.0)
     gain_range = (1.0 / (1.0 + disk), math.inf if disk >= 1.0 else 1.0 / (1.0 - disk))
     disk_phase = math.degrees(2.0 * math.asin(disk / 2.0))

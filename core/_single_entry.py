@@ -49,6 +49,7 @@ from ._single_entry_family import (
     family_from_reduction,
     gain_tolerance,
     margin_tolerance,
+    moving_poles_in_blocks,
     rank_one_family,
     reduce_input,
     unstable_count,
@@ -334,10 +335,10 @@ def _poles_and_counts_each(families, value_lists) -> list[tuple[np.ndarray, np.n
         if family.order:
             by_order.setdefault(family.order, []).append(position)
     for o, members in by_order.items():
-        matrices = np.concatenate([families[p].moving_closed_loop(value_lists[p]) for p in members])
-        moving = np.linalg.eigvals(matrices)
+        # in blocks of bounded size (memory O(o²) per block, not one stack of every probe)
+        moving, norms = moving_poles_in_blocks([families[p] for p in members], [value_lists[p] for p in members])
         # margin_tolerance for each matrix at once: 100·o·eps·max(‖M‖_F, eps)
-        tolerances = 100.0 * max(o, 1) * _EPS * np.maximum(np.linalg.norm(matrices, axis=(1, 2)), _EPS)
+        tolerances = 100.0 * max(o, 1) * _EPS * np.maximum(norms, _EPS)
         start = 0
         for p in members:
             stop = start + value_lists[p].size
@@ -421,6 +422,10 @@ def _quick_probe(family: RankOneFamily, exact_points: list[BoundaryPoint]) -> tu
     v0 = family.current_value
     gains = _merge_gains(family, [p.gain for p in exact_points])
     reach = _piece_reach(family, gains)
+    if gains and _changes_are_exact(family, exact_points, gains):
+        # every crossing is well-conditioned and v0 is on none: the count at v0 is carried across
+        # them (see _carried_counts); the far ends verify it. No count of the pieces themselves.
+        return gains, np.array([v0, gains[0] - 10 * reach, gains[-1] + 10 * reach]), 0
     if gains:
         representatives = [gains[0] - reach] + [0.5 * (a + b) for a, b in zip(gains[:-1], gains[1:])] + [gains[-1] + reach]
         far = [gains[0] - 10 * reach, gains[-1] + 10 * reach]
@@ -428,6 +433,45 @@ def _quick_probe(family: RankOneFamily, exact_points: list[BoundaryPoint]) -> tu
         representatives = [v0]
         far = [v0 - 10 * reach, v0 - reach, v0 + reach, v0 + 10 * reach]
     return gains, np.array([v0] + representatives + far), len(representatives)
+
+
+def _changes_are_exact(family: RankOneFamily, exact_points: list[BoundaryPoint], gains: list[float]) -> bool:
+    """True when the count change across every crossing gain is known exactly and v0 lies on none."""
+    v0 = family.current_value
+    if any(abs(v0 - gain) <= gain_tolerance(family, gain) for gain in gains):
+        return False
+    return all(_expected_change(family, exact_points, gain) is not None for gain in gains)
+
+
+def _carried_counts(family: RankOneFamily, exact_points: list[BoundaryPoint], gains: list[float], current: int,
+                    far_counts) -> list[int] | None:
+    """Piece counts carried from the count at v0 across the exact crossings; None if the far ends disagree.
+
+    Across a well-conditioned crossing the count changes by the crossing directions
+    (:func:`_expected_change`): exact, so one eigenvalue call at v0 fixes every piece. The
+    counts far out on both unbounded ends, computed independently, must equal the carried
+    ones (and no count may leave 0..n); a crossing the structured method missed breaks that.
+    """
+    changes = [_expected_change(family, exact_points, gain) for gain in gains]
+    start = sum(1 for gain in gains if gain < family.current_value)  # the piece holding v0
+    counts = [0] * (len(gains) + 1)
+    counts[start] = current
+    for k in range(start, len(gains)):
+        counts[k + 1] = counts[k] + changes[k]
+    for k in range(start - 1, -1, -1):
+        counts[k] = counts[k + 1] - changes[k]
+    size = family.state_count
+    if not all(0 <= c <= size for c in counts) or counts[0] != int(far_counts[0]) or counts[-1] != int(far_counts[1]):
+        return None
+    return counts
+
+
+def _full_probe(family: RankOneFamily, gains: list[float]) -> tuple[list[float], np.ndarray, int]:
+    """:func:`_quick_probe`'s values with one representative per piece (no counts carried)."""
+    reach = _piece_reach(family, gains)
+    representatives = [gains[0] - reach] + [0.5 * (a + b) for a, b in zip(gains[:-1], gains[1:])] + [gains[-1] + reach]
+    far = [gains[0] - 10 * reach, gains[-1] + 10 * reach]
+    return gains, np.array([family.current_value] + representatives + far), len(representatives)
 
 
 def _classify_pieces(family: RankOneFamily, exact_points: list[BoundaryPoint], probe=None, quick=None):
@@ -448,6 +492,14 @@ def _classify_pieces(family: RankOneFamily, exact_points: list[BoundaryPoint], p
         probe = _quick_probe(family, exact_points)
         _, quick = _poles_and_counts(family, probe[1])
     gains, _, piece_count = probe
+    if piece_count == 0 and gains:
+        counts = _carried_counts(family, exact_points, gains, int(quick[0]), quick[1:])
+        if counts is not None:
+            return gains, counts, bool(quick[0] == 0), []
+        # the carried counts do not meet the far ends: count every piece, as without carrying
+        probe = _full_probe(family, gains)
+        _, quick = _poles_and_counts(family, probe[1])
+        gains, _, piece_count = probe
     counts = [int(c) for c in quick[1 : 1 + piece_count]]
     far_counts = quick[1 + piece_count :]
     consistent = (
@@ -744,19 +796,28 @@ def all_entry_stable_intervals(plant: Plant, K) -> dict[tuple[int, int], StableI
     return _all_entry_intervals(plant, plant.check_gain(K), {})
 
 
+#: Matrix entries held by the families analysed together in :func:`_all_entry_intervals` (2²¹: 16 MiB of floats).
+_FAMILY_GROUP_ENTRIES = 2**21
+
+
 def _all_entry_intervals(plant: Plant, gain: np.ndarray, known: dict) -> dict[tuple[int, int], StableIntervals]:
     """:func:`all_entry_stable_intervals` taking the entries in ``known`` as given (checked gain)."""
     closed_loop = plant.A - plant.B @ gain
-    jobs = []
-    for row in range(plant.input_count):
-        reduction = None
-        for col in range(plant.state_count):
-            if (row, col) in known:
-                continue
-            if reduction is None:
-                reduction = reduce_input(closed_loop, plant.B[:, row])
-            jobs.append(_family_job(plant, _entry_family(plant, gain, row, col, reduction, closed_loop), row, col))
-    analysed = dict(zip([job[1] for job in jobs], _intervals_from_families(jobs)))
+    n = plant.state_count
+    wanted = [(row, col) for row in range(plant.input_count) for col in range(n) if (row, col) not in known]
+    # Entries go through in groups whose families hold a bounded number of matrix entries in all
+    # (each family keeps an o×o matrix, o ≤ n): memory O(n²) times a fixed group size, not O(m·n³).
+    # Families of a group share batched LAPACK calls; every entry's numbers are those it gets alone.
+    group = max(1, _FAMILY_GROUP_ENTRIES // (n * n))
+    reductions: dict[int, object] = {}
+    analysed = {}
+    for start in range(0, len(wanted), group):
+        jobs = []
+        for row, col in wanted[start:start + group]:
+            if row not in reductions:
+                reductions[row] = reduce_input(closed_loop, plant.B[:, row])
+            jobs.append(_family_job(plant, _entry_family(plant, gain, row, col, reductions[row], closed_loop), row, col))
+        analysed.update(zip([job[1] for job in jobs], _intervals_from_families(jobs)))
     return {(row, col): known[(row, col)] if (row, col) in known else analysed[(row, col)]
             for row in range(plant.input_count) for col in range(plant.state_count)}
 
@@ -967,6 +1028,20 @@ def scaled_gain_locus(plant: Plant, K, low: float = 0.0, high: float = 2.0) -> S
         span=sampled.span,
         sampled=plant.is_sampled,
     )
+
+
+def gain_factor_intervals(closed_loop: np.ndarray, input_column: np.ndarray, gain_row: np.ndarray,
+                          sampled: bool) -> StableIntervals:
+    """Exact stable intervals of the factor α in A1 − (α − 1)·b·k, where A1 = ``closed_loop`` (α = 1).
+
+    One actuator loop u = −α·k·x with the loop matrix at α = 1 given: the same exact
+    structured method as :func:`entry_stable_intervals` (``entry`` is (−1, −1)). Loop
+    margins read their gain margins from it: crossings at ω → 0 of an integrating loop are
+    exact here, where a frequency sweep only sees rounding.
+    """
+    family = rank_one_family(np.asarray(closed_loop, dtype=float), np.asarray(input_column, dtype=float),
+                             np.asarray(gain_row, dtype=float), 1.0, sampled)
+    return _intervals_from_family(family, (-1, -1), "the loop's gain factor", lambda: "")
 
 
 def _sampled_crossings(plant: Plant, feedback: np.ndarray, values: np.ndarray, poles: np.ndarray):

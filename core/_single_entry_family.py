@@ -198,6 +198,31 @@ class RankOneFamily:
         return np.concatenate([moving, fixed], axis=1)
 
 
+def moving_poles_in_blocks(families, value_lists) -> tuple[np.ndarray, np.ndarray]:
+    """Moving poles of families of one order at their values, and the Frobenius norm of each matrix.
+
+    Shapes (N, o) and (N,) with N the total number of values, family after family. The
+    matrices M − (v − v0)·w·b·cᵀ are formed and handed to ``numpy.linalg.eigvals`` in blocks
+    of at most :data:`_BORDERED_BUDGET` entries, so memory stays O(o²) per block however many
+    entries and probes there are (at n = 200 one stack of every probe of every entry was
+    4.6 GiB); numpy solves each matrix on its own, so the blocks do not change any number.
+    """
+    order = families[0].order
+    total = sum(np.size(values) for values in value_lists)
+    poles = np.empty((total, order), dtype=complex)
+    norms = np.empty(total)
+    start = 0
+    for family, values in zip(families, value_lists):
+        values = np.atleast_1d(np.asarray(values, dtype=float))
+        for block in _blocks(values.size, order * order):
+            matrices = family.moving_closed_loop(values[block])
+            stop = start + matrices.shape[0]
+            poles[start:stop] = np.linalg.eigvals(matrices)
+            norms[start:stop] = np.linalg.norm(matrices, axis=(1, 2))
+            start = stop
+    return poles, norms
+
+
 def reduce_input(closed_loop: np.ndarray, direction_input: np.ndarray) -> KrylovReduction:
     """The reachable part of (A0, b): shared by every family with the same A0 and b."""
     vector_norm = float(np.linalg.norm(direction_input))
@@ -399,22 +424,43 @@ def _bordered_solutions(stack: _Stack, owner: np.ndarray, points: np.ndarray):
     estimate ‖R‖·max(‖R⁻¹e‖, ‖R⁻ᴴe‖) (k,). That estimate is a lower bound on
     cond(R); it blows up next to a zero of g (where R is singular) because the
     left null vector of R has a non-zero last entry for a minimal realisation.
+
+    The systems go to LAPACK in blocks of at most :data:`_BORDERED_BUDGET` entries of
+    matrices, so memory stays O(o²) times a fixed block whatever the number of candidates;
+    each system is solved on its own, so the blocks do not change any number.
     """
     o = stack.order
-    bordered = _bordered_matrices(stack, owner, points)
-    k = bordered.shape[0]
-    pair = np.concatenate([bordered, bordered.conj().transpose(0, 2, 1)])
-    unit = np.zeros((2 * k, o + 1, 1), dtype=complex)
-    unit[:, o, 0] = 1.0
-    solutions = _solve_each(pair, unit)[:, :, 0]
-    right, left = solutions[:k], solutions[k:]
-    x, t, y = right[:, :o], right[:, o], left[:, :o]
-    # d/ds of R·[x; t] = e gives R·[x'; t'] = −[x; 0], so t' = −eᵀR⁻¹[x; 0] = −yᴴx.
-    derivative = -np.einsum("ki,ki->k", y.conj(), x)
-    condition = np.linalg.norm(bordered, axis=(1, 2)) * np.maximum(
-        np.linalg.norm(right, axis=1), np.linalg.norm(left, axis=1)
-    )
+    k = points.size
+    t = np.empty(k, dtype=complex)
+    x = np.empty((k, o), dtype=complex)
+    y = np.empty((k, o), dtype=complex)
+    derivative = np.empty(k, dtype=complex)
+    condition = np.empty(k)
+    for block in _blocks(k, 2 * (o + 1) ** 2):
+        bordered = _bordered_matrices(stack, owner[block], points[block])
+        size = bordered.shape[0]
+        pair = np.concatenate([bordered, bordered.conj().transpose(0, 2, 1)])
+        unit = np.zeros((2 * size, o + 1, 1), dtype=complex)
+        unit[:, o, 0] = 1.0
+        solutions = _solve_each(pair, unit)[:, :, 0]
+        right, left = solutions[:size], solutions[size:]
+        x[block], t[block], y[block] = right[:, :o], right[:, o], left[:, :o]
+        # d/ds of R·[x; t] = e gives R·[x'; t'] = −[x; 0], so t' = −eᵀR⁻¹[x; 0] = −yᴴx.
+        derivative[block] = -np.einsum("ki,ki->k", left[:, :o].conj(), right[:, :o])
+        condition[block] = np.linalg.norm(bordered, axis=(1, 2)) * np.maximum(
+            np.linalg.norm(right, axis=1), np.linalg.norm(left, axis=1)
+        )
     return t, x, y, derivative, condition
+
+
+#: Matrix entries handed to one batched LAPACK call (2²¹ complex: 32 MiB): the fixed block size.
+_BORDERED_BUDGET = 2**21
+
+
+def _blocks(count: int, entries_each: int):
+    """Slices of range(count) holding at most :data:`_BORDERED_BUDGET` matrix entries each (at least one item)."""
+    size = max(1, _BORDERED_BUDGET // max(entries_each, 1))
+    return [slice(start, min(start + size, count)) for start in range(0, count, size)]
 
 
 def _closed_norm_bound(scale, t):
@@ -620,12 +666,16 @@ def boundary_is_everywhere_of(families) -> list[bool]:
             points = np.tile(np.exp(1j * fractions), count)
         else:
             points = (1j * fractions * stack.pole_scale[:, None]).ravel()
-        bordered = _bordered_matrices(stack, owner, points)
-        unit = np.zeros((points.size, stack.order + 1, 1), dtype=complex)
-        unit[:, -1, 0] = 1.0
+        t = np.empty(points.size, dtype=complex)
+        for block in _blocks(points.size, (stack.order + 1) ** 2):
+            bordered = _bordered_matrices(stack, owner[block], points[block])
+            unit = np.zeros((bordered.shape[0], stack.order + 1, 1), dtype=complex)
+            unit[:, -1, 0] = 1.0
+            with np.errstate(all="ignore"):
+                t[block] = _solve_each(bordered, unit)[:, -1, 0]
+        t = t.reshape(count, fractions.size)
         with np.errstate(all="ignore"):
             # a singular point gives nan: inconclusive
-            t = _solve_each(bordered, unit)[:, -1, 0].reshape(count, fractions.size)
             conclusive = np.isfinite(t) & (t != 0.0)
             complex_there = conclusive & (np.abs(t.imag) > 1e4 * max(stack.order, 1) * _EPS * np.abs(t))
         everywhere = ~complex_there.any(axis=1) & (np.count_nonzero(conclusive, axis=1) >= 2)

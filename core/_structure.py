@@ -244,6 +244,18 @@ def controllability_staircase(A, B) -> StaircaseForm:
     (1, (1,))
     """
     A, B = _checked_pair(A, B)
+    form, _, _ = _staircase_with_margins(A, B, sort_poles(np.linalg.eigvals(A)))
+    return form
+
+
+def _staircase_with_margins(A: np.ndarray, B: np.ndarray, poles: np.ndarray):
+    """:func:`controllability_staircase` of checked (A, B), with the fixed flags and PBH margins of ``poles``.
+
+    ``poles`` are the eigenvalues of A. The PBH margins that decide whether to repeat the
+    reduction are those of the movable poles (the poles of the controllable part), so the
+    structure report takes them from here instead of running every SVD a second time.
+    Returns (form, fixed flags, margins) with margin 0 for the fixed poles.
+    """
     n, m = B.shape
     norm_A = float(np.linalg.norm(A, 2))
     norm_B = float(np.linalg.norm(B, 2))
@@ -257,15 +269,24 @@ def controllability_staircase(A, B) -> StaircaseForm:
     for exponent in range(_LARGEST_TOLERANCE_EXPONENT + 1):
         scale = 10.0**exponent
         form = _staircase(A, B, scale * base_B, scale * base_A, norm_A, norm_B, scale)
-        first = first or form
+        if form.controllable_dimension == 0:
+            fixed, _ = _fixed_flags(form, poles)
+            return form, fixed, np.zeros(poles.size)
+        fixed, _ = _fixed_flags(form, poles)
+        margins = np.zeros(poles.size)
         k = form.controllable_dimension
-        if k == 0:
-            return form
-        part = form.A[:k, :k]
-        margins = _pbh_margins(part, form.B[:k, :], np.linalg.eigvals(part), norm_A, norm_B)
-        if np.min(margins) > pbh_threshold:
-            return form
-    return first
+        # a repeat is decided as soon as one margin is below the threshold (the rest is not needed then)
+        margins[~fixed] = _pbh_margins(form.A[:k, :k], form.B[:k, :], poles[~fixed], norm_A, norm_B,
+                                       stop_below=pbh_threshold)
+        if first is None:
+            first = form
+        if not np.any(np.isnan(margins)) and (margins[~fixed].size == 0 or np.min(margins[~fixed]) > pbh_threshold):
+            return form, fixed, margins
+    fixed, _ = _fixed_flags(first, poles)
+    k = first.controllable_dimension
+    margins = np.zeros(poles.size)
+    margins[~fixed] = _pbh_margins(first.A[:k, :k], first.B[:k, :], poles[~fixed], norm_A, norm_B)
+    return first, fixed, margins
 
 
 def _staircase(A, B, tolerance_B, tolerance_A, norm_A, norm_B, scale) -> StaircaseForm:
@@ -304,12 +325,22 @@ def _staircase(A, B, tolerance_B, tolerance_A, norm_A, norm_B, scale) -> Stairca
     )
 
 
-def _pbh_margins(A_part: np.ndarray, B_part: np.ndarray, poles: np.ndarray, norm_A: float, norm_B: float) -> np.ndarray:
+#: PBH matrices (k × (k + m)) per batched SVD call: bounds memory at large n and lets a repeat stop early.
+_PBH_BATCH = 16
+
+
+def _pbh_margins(A_part: np.ndarray, B_part: np.ndarray, poles: np.ndarray, norm_A: float, norm_B: float,
+                 stop_below: float | None = None) -> np.ndarray:
     """Relative PBH margin of each pole: σ_min([λI − A, B·‖A‖/‖B‖]) / ‖A‖.
 
     B is rescaled to the norm of A so that the figure does not depend on the
     units of the inputs; dividing by ‖A‖ makes it independent of the time unit.
     For A = 0 the scale ‖B‖ is used throughout.
+
+    A and B are real, so a pole and its conjugate have the same margin (the PBH matrices are
+    conjugates): one SVD per pair, real arithmetic for real poles, in batches of a few poles.
+    With ``stop_below``, the work stops after the first batch holding a margin below it, and the
+    poles not reached get NaN.
     """
     if poles.size == 0:
         return np.zeros(0)
@@ -320,11 +351,26 @@ def _pbh_margins(A_part: np.ndarray, B_part: np.ndarray, poles: np.ndarray, norm
     if k == 0:
         return np.zeros(poles.size)
     scaled_B = B_part * (scale / norm_B)
-    margins = np.empty(poles.size)
-    for i, pole in enumerate(poles):
-        pbh = np.hstack([pole * np.eye(k) - A_part, scaled_B.astype(complex)])
-        margins[i] = np.linalg.svd(pbh, compute_uv=False)[-1] / scale
-    return margins
+    # one representative per conjugate pair: the upper half plane (exact pairs from LAPACK)
+    representatives = sorted({complex(p.real, abs(p.imag)) for p in np.asarray(poles, dtype=complex)},
+                             key=lambda p: (p.imag != 0.0, p.real, p.imag))
+    found: dict[complex, float] = {}
+    identity = np.eye(k)
+    for start in range(0, len(representatives), _PBH_BATCH):
+        batch = np.array(representatives[start:start + _PBH_BATCH])
+        real = batch.imag == 0.0
+        for chosen, dtype in ((real, float), (~real, complex)):
+            if not np.any(chosen):
+                continue
+            values = batch[chosen] if dtype is complex else batch[chosen].real
+            pbh = np.empty((values.size, k, k + scaled_B.shape[1]), dtype=dtype)
+            pbh[:, :, :k] = values[:, None, None] * identity - A_part
+            pbh[:, :, k:] = scaled_B
+            smallest = np.linalg.svd(pbh, compute_uv=False)[:, -1] / scale
+            found.update(zip(batch[chosen].tolist(), smallest.tolist()))
+        if stop_below is not None and min(found.values()) <= stop_below:
+            break
+    return np.array([found.get(complex(p.real, abs(p.imag)), math.nan) for p in np.asarray(poles, dtype=complex)])
 
 
 def _fixed_flags(form: StaircaseForm, poles: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -348,15 +394,6 @@ def _fixed_flags(form: StaircaseForm, poles: np.ndarray) -> tuple[np.ndarray, np
             fixed[stop - count:stop] = True
             start = stop
     return fixed, poles[fixed]
-
-
-def _margins_for(form: StaircaseForm, poles: np.ndarray, fixed: np.ndarray, norm_A: float, norm_B: float) -> np.ndarray:
-    k = form.controllable_dimension
-    margins = np.zeros(poles.size)
-    movable = ~fixed
-    if np.any(movable):
-        margins[movable] = _pbh_margins(form.A[:k, :k], form.B[:k, :], poles[movable], norm_A, norm_B)
-    return margins
 
 
 @dataclass(frozen=True, eq=False)
@@ -448,13 +485,11 @@ def analyze_structure(plant) -> StructureReport:
     norm_A = float(np.linalg.norm(A, 2))
     poles = sort_poles(np.linalg.eigvals(A))
 
-    reach = controllability_staircase(A, B)
-    fixed, fixed_values = _fixed_flags(reach, poles)
-    reach_margins = _margins_for(reach, poles, fixed, norm_A, float(np.linalg.norm(B, 2)))
-
-    seen = controllability_staircase(A.T, C.T)
-    hidden, hidden_values = _fixed_flags(seen, poles)
-    seen_margins = _margins_for(seen, poles, hidden, norm_A, float(np.linalg.norm(C, 2)))
+    # each side's PBH margins come out of its staircase check: every SVD runs once
+    reach, fixed, reach_margins = _staircase_with_margins(*_checked_pair(A, B), poles)
+    fixed_values = poles[fixed]
+    seen, hidden, seen_margins = _staircase_with_margins(*_checked_pair(A.T, C.T, "C"), poles)
+    hidden_values = poles[hidden]
 
     def smallest(margins, flags):
         chosen = margins[~flags]

@@ -9,6 +9,7 @@ import mpmath
 import numpy as np
 import pytest
 import scipy.linalg
+import scipy.optimize
 import scipy.signal
 import sympy as sp
 from hypothesis import assume, given, settings
@@ -278,3 +279,106 @@ def test_frequency_response_refuses_poles_on_the_axis_and_bad_frequencies():
         frequency_response(integrator, [[1.0]], [-1.0])
     with pytest.raises(GainError, match=r"K is 1×2 but must be 1×1"):
         loop_margins(integrator, [[1.0, 2.0]])
+
+
+def _routh_hurwitz_factor_range(A, B, K):
+    """The set of α > 0 with A − αBK Hurwitz, exactly, from sympy (Hurwitz determinants of det(sI − A + αBK)).
+
+    Reference: the Routh–Hurwitz criterion (all leading principal minors of the Hurwitz matrix of a
+    polynomial with positive leading coefficient are positive; Gantmacher, *The Theory of Matrices*, vol. 2,
+    ch. XV, from memory), solved as inequalities in α by sympy.
+    """
+    s, a = sp.symbols("s alpha", real=True)
+    matrix = sp.Matrix(A).applyfunc(sp.nsimplify) - a * sp.Matrix(B).applyfunc(sp.nsimplify) * \
+        sp.Matrix(K).applyfunc(sp.nsimplify)
+    poly = sp.Poly(sp.expand((s * sp.eye(matrix.shape[0]) - matrix).det()), s)
+    coefficients = poly.all_coeffs()  # highest power first, leading 1
+    n = len(coefficients) - 1
+    hurwitz = sp.zeros(n, n)
+    for row in range(n):
+        for col in range(n):
+            index = 2 * col - row + 1
+            if 0 <= index <= n:
+                hurwitz[row, col] = coefficients[index]
+    region = sp.Interval.open(0, sp.oo)
+    for size in range(1, n + 1):
+        minor = sp.factor(hurwitz[:size, :size].det())
+        region = region.intersect(sp.solveset(minor > 0, a, domain=sp.S.Reals))
+    return region
+
+
+def test_type_two_loop_has_infinite_gain_margins_as_routh_hurwitz_says():
+    # Issue 11 item 2: two integrators and a lag; Routh–Hurwitz (sympy) says every α > 0 is stable,
+    # so no gain factor destabilises the loop: no false margin from ω → 0.
+    A, B, K = [[0, 1, 0], [0, 0, 1], [0, 0, -10]], [[0], [0], [10]], [[8, 6, 1]]
+    assert _routh_hurwitz_factor_range(A, B, K) == sp.Interval.open(0, sp.oo)
+    margins = loop_margins(Plant(A=A, B=B), K)
+    assert margins.gain_margin_increase == math.inf
+    assert margins.gain_margin_decrease == 0.0
+    assert margins.gain_margin_db_min == math.inf
+    assert margins.phase_crossover_frequencies == ()
+
+
+def test_type_two_loop_with_finite_upper_margin_matches_routh_hurwitz():
+    # det(sI − A + αBK) = s³ + (1 − α/4)s² + 2αs + α: Hurwitz for 0 < α < 2 (sympy below). Both
+    # integrators make α → 0 a crossing at ω = 0, which must give decrease 0, not a factor of rounding size.
+    A, B, K = [[0, 1, 0], [0, 0, 1], [0, 0, -1]], [[0], [0], [1]], [[1, 2, -0.25]]
+    region = _routh_hurwitz_factor_range(A, B, K)
+    assert region == sp.Interval.open(0, 2)
+    margins = loop_margins(Plant(A=A, B=B), K)
+    assert margins.gain_margin_increase == pytest.approx(2.0, rel=1e-12)
+    assert margins.gain_margin_decrease == 0.0
+    # at α = 2 the polynomial is s³ + s²/2 + 4s + 2 = (s + 1/2)(s² + 4): the phase crossover is at 2 rad/s (sympy)
+    s = sp.symbols("s")
+    assert sp.factor(s**3 + s**2 / 2 + 4 * s + 2) == sp.factor((s + sp.Rational(1, 2)) * (s**2 + 4))
+    assert margins.phase_crossover_frequencies == pytest.approx((2.0,), rel=1e-12)
+
+
+def test_type_two_loop_gain_margin_below_one_matches_routh_hurwitz():
+    # A conditionally stable type-2 loop: det = s³ + (2 + 2α)s² + αs + 3α, Hurwitz iff (2 + 2α) > 3, i.e. α > 1/2
+    # (sympy below); loop_margins must report exactly that decrease and no upper limit.
+    A, B, K = [[0, 1, 0], [0, 0, 1], [0, 0, -2]], [[0], [0], [1]], [[3, 1, 2]]
+    region = _routh_hurwitz_factor_range(A, B, K)
+    assert region == sp.Interval.open(sp.Rational(1, 2), sp.oo)
+    margins = loop_margins(Plant(A=A, B=B), K)
+    low = 0.0 if region.start == 0 else float(region.start)
+    high = math.inf if region.end == sp.oo else float(region.end)
+    assert margins.gain_margin_decrease == pytest.approx(low, rel=1e-12, abs=0)
+    assert margins.gain_margin_increase == pytest.approx(high, rel=1e-12)
+
+
+def _cart_chain(carts: int, rng):
+    """Carts joined by springs and light dampers, pushed at the first cart (a demo scenario of our own)."""
+    masses = rng.uniform(0.5, 2.0, carts)
+    stiffness = np.zeros((carts, carts))
+    damping = np.zeros((carts, carts))
+    for j in range(carts - 1):
+        for matrix, value in ((stiffness, rng.uniform(0.5, 4.0)), (damping, rng.uniform(0.01, 0.1))):
+            matrix[j:j + 2, j:j + 2] += value * np.array([[1.0, -1.0], [-1.0, 1.0]])
+    A = np.block([[np.zeros((carts, carts)), np.eye(carts)],
+                  [-stiffness / masses[:, None], -damping / masses[:, None]]])
+    B = np.zeros((2 * carts, 1))
+    B[carts, 0] = 1.0 / masses[0]
+    return A, B
+
+
+def test_gain_crossovers_equal_an_independent_dense_sweep(rng):
+    # Reference: a per-frequency numpy.linalg.solve of (jωI − A) x = b on a 4 000-point log grid and
+    # scipy.optimize.brentq on |L|² − 1 (independent of the shared sweep, the pencil and the modal form).
+    A, B = _cart_chain(6, rng)
+    K = B.T @ scipy.linalg.solve_continuous_are(A, B, np.eye(12), np.eye(1))  # LQR gain (scipy)
+    margins = loop_margins(Plant(A=A, B=B), K)
+
+    def loop(omega):
+        return complex(K[0] @ np.linalg.solve(1j * omega * np.eye(12) - A, B[:, 0]))
+
+    grid = np.geomspace(1e-3, 1e3, 4000)
+    excess = np.array([abs(loop(w)) ** 2 - 1 for w in grid])
+    reference = [scipy.optimize.brentq(lambda w: abs(loop(w)) ** 2 - 1, grid[j], grid[j + 1], xtol=1e-300,
+                                       rtol=1e-15)
+                 for j in np.flatnonzero(excess[:-1] * excess[1:] < 0)]
+    assert len(reference) >= 1
+    assert margins.loop_at_a_time[0].gain_crossover_frequencies == pytest.approx(tuple(reference), rel=1e-9)
+    # the phase margin is read at the reference crossover with the smallest distance to −1
+    angles = [abs(180.0 - abs(math.degrees(np.angle(loop(w))))) for w in reference]
+    assert margins.phase_margin_deg == pytest.approx(min(angles), abs=1e-7)

@@ -237,3 +237,33 @@ def test_ranks_match_sympys_exact_rank_of_the_integer_controllability_matrix(see
     # the Kalman decomposition fixes exactly n − rank poles (Kalman 1963, from memory)
     assert sum(not movable for movable in report.pole_movable) == n - reach.rank()
     assert sum(not seen_ for seen_ in report.pole_observable) == n - seen.rank()
+
+
+def test_structure_analysis_runs_each_pbh_svd_once_per_conjugate_pair(monkeypatch, rng):
+    # Issue 11 item 7: the staircase check and the report used to run every PBH SVD twice, and once
+    # per pole of a conjugate pair (σ([λ̄I − A, B]) = σ([λI − A, B]) for real A, B: conjugate matrices).
+    import gainboard.core._structure as structure
+
+    A = rng.normal(size=(6, 6))
+    B = rng.normal(size=(6, 2))
+    C = rng.normal(size=(1, 6))
+    poles = np.linalg.eigvals(A)
+    pairs = int(np.sum(poles.imag >= 0))
+    svd = np.linalg.svd
+    pbh_matrices = []
+
+    def counting_svd(matrix, *args, **kwargs):
+        matrix = np.asarray(matrix)
+        if matrix.ndim == 3 and matrix.shape[1] == 6:  # a batch of PBH matrices [λI − A, B] (6 rows)
+            pbh_matrices.append(matrix.shape[0])
+        return svd(matrix, *args, **kwargs)
+
+    monkeypatch.setattr(structure.np.linalg, "svd", counting_svd)
+    report = analyze_structure(Plant(A=A, B=B, C=C))
+    monkeypatch.undo()
+    assert sum(pbh_matrices) == 2 * pairs  # one per pair, for controllability and for observability
+    # Reference: numpy's SVD of each PBH matrix, B scaled to ‖A‖ (the definition in StructureReport).
+    norm_A = np.linalg.norm(A, 2)
+    for pole, margin in zip(report.open_loop_poles, report.pole_controllability_margins):
+        matrix = np.hstack([pole * np.eye(6) - A, B * norm_A / np.linalg.norm(B, 2)])
+        assert margin == pytest.approx(np.linalg.svd(matrix, compute_uv=False)[-1] / norm_A, rel=1e-9, abs=1e-15)
