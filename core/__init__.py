@@ -10,6 +10,7 @@ from ._plant import *  # noqa: F401,F403
 from ._specs import *  # noqa: F401,F403
 from ._plant_file import *  # noqa: F401,F403
 from ._structure import *  # noqa: F401,F403
+from ._stability import *  # noqa: F401,F403
 from ._closed_loop import *  # noqa: F401,F403
 from ._placement import *  # noqa: F401,F403
 from ._single_entry import *  # noqa: F401,F403

@@ -37,6 +37,7 @@ import scipy.optimize
 
 from ._errors import AnalysisError
 from ._plant import Plant
+from ._stability import decide_stability
 
 __all__ = ["SingleLoopMargins", "LoopMargins", "loop_margins", "frequency_response"]
 
@@ -367,12 +368,7 @@ def _wrap_degrees(angle: float) -> float:
 
 
 def _is_stable(matrix: np.ndarray, sample_time: float | None) -> bool:
-    poles = np.linalg.eigvals(matrix)
-    n = matrix.shape[0]
-    if sample_time is not None:
-        return bool(np.max(np.abs(poles)) < 1.0 - 1e3 * n * _EPS)
-    scale = max(np.linalg.norm(matrix, 2), np.finfo(float).tiny)
-    return bool(np.max(poles.real) < -1e3 * n * _EPS * scale)
+    return decide_stability(np.linalg.eigvals(matrix), np.linalg.norm(matrix), matrix.shape[0], sample_time).stable
 
 
 def _single_loop(A, b, k, sample_time, index: int, name: str) -> SingleLoopMargins:

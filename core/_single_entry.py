@@ -39,6 +39,7 @@ from ._arrays import read_only
 from ._closed_loop import _Eigensystem, _eigensystem
 from ._errors import GainError
 from ._plant import Plant
+from ._stability import boundary_tolerance
 from ._single_entry_family import (
     BoundaryPoint,
     RankOneFamily,
@@ -336,8 +337,7 @@ def _poles_and_counts_each(families, value_lists) -> list[tuple[np.ndarray, np.n
     for o, members in by_order.items():
         matrices = np.concatenate([families[p].moving_closed_loop(value_lists[p]) for p in members])
         moving = np.linalg.eigvals(matrices)
-        # margin_tolerance for each matrix at once: 100·o·eps·max(‖M‖_F, eps)
-        tolerances = 100.0 * max(o, 1) * _EPS * np.maximum(np.linalg.norm(matrices, axis=(1, 2)), _EPS)
+        tolerances = boundary_tolerance(np.linalg.norm(matrices, axis=(1, 2)), o)  # the one rule, per matrix
         start = 0
         for p in members:
             stop = start + value_lists[p].size
