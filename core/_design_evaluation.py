@@ -256,7 +256,8 @@ def evaluate_design(plant: Plant, gain, options: EvaluationOptions | None = None
 
     spec_report = region = None
     if specs is not None:
-        spec_report = check_specs(specs, closed_loop.poles, responses, margins, plant.sample_time)
+        spec_report = check_specs(specs, closed_loop.poles, responses, margins, plant.sample_time,
+                                  closed_loop.boundary_tolerance)
         region = pole_region(specs, plant.sample_time)
 
     return DesignEvaluation(

@@ -279,7 +279,7 @@ class StableIntervals:
     current_value : float
         The entry's value in the given K.
     current_is_stable : bool
-        Whether the given K gives a stable loop.
+        Whether the given K gives a stable loop (``current_verdict == "stable"``).
     never_stable_reason : str
         Why no value works (empty when ``intervals`` is not empty).
     pieces : tuple of (float, float, int)
@@ -297,6 +297,10 @@ class StableIntervals:
         Crossing gains closer than this are treated as one.
     warnings : tuple of str
         Conditioning notes (ill-conditioned or touching crossings).
+    current_verdict : str
+        The one stability decision (:func:`gainboard.core.decide_stability`) on the loop with
+        the given K: ``"stable"``, ``"on the boundary"`` or ``"unstable"``. It always agrees
+        with the intervals: stable exactly when the current value lies inside one.
     """
 
     entry: tuple[int, int]
@@ -311,6 +315,7 @@ class StableIntervals:
     sampled: bool
     gain_tolerance: float
     warnings: tuple[str, ...]
+    current_verdict: str
 
     def contains(self, value: float) -> bool:
         """True when ``value`` lies inside one of the (open) stable intervals."""
@@ -377,6 +382,12 @@ def _decision_at(family: RankOneFamily, value: float, poles: np.ndarray) -> Stab
     """The one stability decision on the closed loop at ``value`` (poles: all n of them there)."""
     norm = float(_closed_loop_norm_bound(family, [value])[0])
     return decide_stability(poles, norm, family.state_count, 1.0 if family.sampled else None)
+
+
+def _current_decision(family: RankOneFamily, value: float | None = None) -> StabilityDecision:
+    """The one stability decision on the loop at ``value`` (default: the current value)."""
+    value = family.current_value if value is None else value
+    return _decision_at(family, value, _poles_and_counts(family, np.array([value]))[0][0])
 
 
 def _poles_and_counts(family: RankOneFamily, values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -747,7 +758,8 @@ def _intervals_result(family: RankOneFamily, entry, label: str, fixed_reason, ev
                 f"{count} pole(s) stay {where} whatever its value: change another entry or the plant"
             )
         return StableIntervals(entry, intervals, (), v0, current_is_stable, reason,
-                               ((-math.inf, math.inf, count),), fixed, False, sampled, tolerance, ())
+                               ((-math.inf, math.inf, count),), fixed, False, sampled, tolerance, (),
+                               _current_decision(family).verdict)
 
     if everywhere:
         current_is_stable = bool(quick[0] == 0)
@@ -758,7 +770,7 @@ def _intervals_result(family: RankOneFamily, entry, label: str, fixed_reason, ev
             "no value of this entry stabilises the loop: change another entry first"
         )
         return StableIntervals(entry, (), (), v0, current_is_stable, reason, (), fixed, True, sampled,
-                               tolerance, ())
+                               tolerance, (), _current_decision(family).verdict)
 
     points = list(points)
     gains, counts, current_is_stable, located = _classify_pieces(family, points, probe, quick)
@@ -770,9 +782,19 @@ def _intervals_result(family: RankOneFamily, entry, label: str, fixed_reason, ev
     edges = [-math.inf] + gains + [math.inf]
     pieces = tuple((edges[k], edges[k + 1], int(counts[k])) for k in range(len(counts)))
     intervals = tuple((low, high) for low, high, count in pieces if count == 0)
+    warnings = []
+    decision = _current_decision(family)
+    current_is_stable = decision.stable
+    inside = [(low, high) for low, high in intervals if low < v0 < high]
+    if inside and not decision.stable:
+        # the loop at v0 itself has a pole on the boundary inside a stable piece: a touch that
+        # the crossings missed (or placed a rounding error away); v0 is not a stable value
+        low, high = inside[0]
+        intervals = tuple(sorted([i for i in intervals if i != (low, high)] + [(low, v0), (v0, high)]))
+        warnings.append(f"at the current value {v0:.9g} of {label} a pole is {decision.verdict} "
+                        "(margin within rounding): that value splits its stable interval")
 
     crossings = []
-    warnings = []
     for point in points:
         # the piece boundary this crossing belongs to
         k = int(np.argmin([abs(point.gain - g) for g in gains]))
@@ -821,7 +843,7 @@ def _intervals_result(family: RankOneFamily, entry, label: str, fixed_reason, ev
                 f"for every value (fewest between {low:.6g} and {high:.6g}); change another entry first"
             )
     return StableIntervals(entry, intervals, tuple(crossings), v0, current_is_stable, reason, pieces, fixed,
-                           True, sampled, tolerance, tuple(warnings))
+                           True, sampled, tolerance, tuple(warnings), decision.verdict)
 
 
 def entry_stable_intervals(plant: Plant, K, row: int, col: int) -> StableIntervals:
@@ -1412,8 +1434,9 @@ def _intervals_at(record: _EntryRecord, value: float) -> tuple[StableIntervals, 
     eigenvalue call), ready to be added to the locus.
     """
     poles, counts = _poles_and_counts(record.family, np.array([value]))
-    analysis = replace(record.analysis, current_value=value, current_is_stable=bool(counts[0] == 0),
-                       gain_tolerance=gain_tolerance(record.family, value))
+    decision = _decision_at(record.family, value, poles[0])
+    analysis = replace(record.analysis, current_value=value, current_is_stable=decision.stable,
+                       current_verdict=decision.verdict, gain_tolerance=gain_tolerance(record.family, value))
     return analysis, poles[0]
 
 
