@@ -29,6 +29,7 @@ from __future__ import annotations
 import math
 import numbers
 import threading
+from warnings import catch_warnings, simplefilter
 import weakref
 from collections import OrderedDict
 from dataclasses import dataclass, replace
@@ -641,6 +642,80 @@ def _without_rounding_slivers(family: RankOneFamily, gains: list[float], counts:
     return kept_gains, kept_counts, dropped
 
 
+#: Newton steps on h′ for a touching point (quadratic convergence from a √eps start).
+_TOUCH_NEWTON_STEPS = 8
+
+
+def _refined_touch(family: RankOneFamily, point: BoundaryPoint) -> BoundaryPoint:
+    """A touching point to full precision: Newton's method on the derivative of the crossing condition.
+
+    A boundary pole s(p) = jp (sampled: e^{jp}) is a pole at the real change
+    t = −1/(w·g(s)) of the entry exactly where h(p) = Im g(s(p)) = 0, with
+    g(s) = cnᵀ(sI − M)⁻¹bn. Where a pole touches the boundary without crossing it, two zeros
+    of h meet: h has a double zero, which the crossing search resolves only to about √eps
+    (4.00000005 for an exact 4). The double zero is a simple zero of h′, found by Newton's
+    method on h′ to rounding level; from g′ = −cnᵀR²bn and g″ = 2cnᵀR³bn (R = (sI − M)⁻¹):
+    continuous h′ = Re g′, h″ = −Im g″; sampled h′ = Re(z g′), h″ = −Im(z g′ + z² g″).
+    The refined point is kept only when |h| is no larger there than at the start.
+    """
+    if family.order == 0:
+        return point
+    M, bn, cn, w = family.moving_matrix, family.moving_input, family.moving_output, family.direction_weight
+    identity = np.eye(family.order)
+
+    def derivatives(parameter: float):
+        s = complex(math.cos(parameter), math.sin(parameter)) if family.sampled else complex(0.0, parameter)
+        factor = scipy.linalg.lu_factor(s * identity - M)
+        first = scipy.linalg.lu_solve(factor, bn.astype(complex))
+        second = scipy.linalg.lu_solve(factor, first)
+        third = scipy.linalg.lu_solve(factor, second)
+        g, g1, g2 = cn @ first, -(cn @ second), 2.0 * (cn @ third)
+        if family.sampled:
+            return s, g, (s * g1).real, -(s * g1 + s * s * g2).imag
+        return s, g, g1.real, -g2.imag
+
+    try:
+        with np.errstate(all="ignore"), catch_warnings():
+            simplefilter("ignore")  # a singular step is caught by the checks below
+            parameter = point.parameter
+            s, g, slope, curvature = derivatives(parameter)
+            start_residual = abs(g.imag)
+            for _ in range(_TOUCH_NEWTON_STEPS):
+                if not (math.isfinite(slope) and math.isfinite(curvature)) or curvature == 0.0:
+                    break
+                step = slope / curvature
+                parameter -= step
+                s, g, slope, curvature = derivatives(parameter)
+                if abs(step) <= 4.0 * _EPS * max(abs(parameter), 1.0):
+                    break
+    except (np.linalg.LinAlgError, ValueError):
+        return point
+    if not (np.isfinite(g) and g.real != 0.0 and abs(g.imag) <= max(start_residual, 8.0 * _EPS * abs(g))):
+        return point
+    gain = family.current_value - 1.0 / (w * g.real)
+    if not math.isfinite(gain):
+        return point
+    return replace(point, gain=float(gain), point=complex(s), parameter=float(abs(parameter)), speed=0.0)
+
+
+def _with_refined_touches(family: RankOneFamily, gains: list[float], counts: list[int], points):
+    """Gains and points with every touching edge (equal counts on both sides) refined."""
+    gains, points = list(gains), list(points)
+    for k, gain in enumerate(gains):
+        if counts[k] != counts[k + 1] or counts[k] != 0:
+            continue  # only a touch inside a stable range is an end of two intervals
+        near = [i for i, p in enumerate(points) if abs(p.gain - gain) <= gain_tolerance(family, gain) and p.exact]
+        if len(near) != 1:
+            continue
+        refined = _refined_touch(family, points[near[0]])
+        low = gains[k - 1] if k else -math.inf
+        high = gains[k + 1] if k + 1 < len(gains) else math.inf
+        if low < refined.gain < high:
+            points[near[0]] = refined
+            gains[k] = refined.gain
+    return gains, points
+
+
 def _piece_of(gains: list[float], value: float) -> int | None:
     """Index of the piece (between consecutive crossing gains) holding ``value``; None on a gain."""
     edges = [-math.inf] + list(gains) + [math.inf]
@@ -779,6 +854,7 @@ def _intervals_result(family: RankOneFamily, entry, label: str, fixed_reason, ev
     dropped += slivers
     points = [p for p in points + located if not any(abs(p.gain - g) <= gain_tolerance(family, g) for g in dropped)]
     points = sorted(points, key=lambda p: (p.gain, p.parameter))
+    gains, points = _with_refined_touches(family, gains, counts, points)
     edges = [-math.inf] + gains + [math.inf]
     pieces = tuple((edges[k], edges[k + 1], int(counts[k])) for k in range(len(counts)))
     intervals = tuple((low, high) for low, high, count in pieces if count == 0)
@@ -790,7 +866,16 @@ def _intervals_result(family: RankOneFamily, entry, label: str, fixed_reason, ev
         # the loop at v0 itself has a pole on the boundary inside a stable piece: a touch that
         # the crossings missed (or placed a rounding error away); v0 is not a stable value
         low, high = inside[0]
-        intervals = tuple(sorted([i for i in intervals if i != (low, high)] + [(low, v0), (v0, high)]))
+        replaced = {(low, high)}
+        for other in intervals:
+            # a touching end a rounding error from v0 is the same point: v0 takes its place
+            if other[1] == low and v0 - low <= tolerance:
+                replaced.add(other)
+                low = other[0]
+            elif other[0] == high and high - v0 <= tolerance:
+                replaced.add(other)
+                high = other[1]
+        intervals = tuple(sorted([i for i in intervals if i not in replaced] + [(low, v0), (v0, high)]))
         warnings.append(f"at the current value {v0:.9g} of {label} a pole is {decision.verdict} "
                         "(margin within rounding): that value splits its stable interval")
 

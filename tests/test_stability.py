@@ -7,6 +7,7 @@ poles exactly on the stability boundary; every view of it must say "on the bound
 
 import json
 import math
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -130,3 +131,129 @@ def test_evaluate_and_sweep_json_say_on_the_boundary(name, tmp_path, capsys):
     assert not any(low < K[0][0] < high for low, high in sweep["stable_intervals"])
     main(["evaluate", path, "--gain", json.dumps(K)])
     assert "ON THE BOUNDARY" in capsys.readouterr().out
+
+
+# ---------------------------------------------------------------------------------------------
+# Tangency ends to full precision, and the current value agreeing with the intervals
+# ---------------------------------------------------------------------------------------------
+def _touching_plant(lower_rows):
+    """A realisation T·C·T⁻¹ of the companion C of s³ − 3s² − 3s − 7 (dyadic T: floats exact).
+
+    Changing entry (0, 0) by v gives s³ + (v−3)s² + (v−3)s + (2v−7) (checked with sympy in the
+    test). Routh–Hurwitz: stable iff v > 3, v > 7/2 and (v−3)² − (2v−7) = (v−4)² > 0, so the
+    stable set is (7/2, 4) ∪ (4, ∞); at v = 4 the poles ±j touch the axis (derived by hand from
+    the Routh array; sympy confirms the polynomial).
+    """
+    companion = np.array([[0.0, 1.0, 0.0], [0.0, 0.0, 1.0], [7.0, 3.0, 3.0]])
+    T = np.array([[2.0, 1.0, 1.0], lower_rows[0], lower_rows[1]])
+    return core.Plant(A=T @ companion @ np.linalg.inv(T), B=T @ np.array([[0.0], [0.0], [1.0]]))
+
+
+TOUCHING_REALISATIONS = [((0.0, 1.0, 0.0), (0.0, 0.0, 1.0)), ((0.0, 1.0, 0.5), (0.0, 0.0, 1.0))]
+
+
+@pytest.mark.parametrize("rows", TOUCHING_REALISATIONS)
+@pytest.mark.parametrize("current", [0.0, 3.9, 10.0, 100.0, -50.0])
+def test_a_touching_end_is_found_to_full_precision(rows, current):
+    plant = _touching_plant(rows)
+    v = sympy.symbols("v")
+    # the entries are dyadic, so the floats convert to sympy rationals exactly
+    A = sympy.Matrix([[sympy.Rational(x) for x in row] for row in plant.A.tolist()])
+    B = sympy.Matrix([[sympy.Rational(x) for x in row] for row in plant.B.tolist()])
+    K = sympy.Matrix([[v, 0, 0]])
+    # sympy: the exact closed-loop polynomial of the family
+    assert sympy.expand((A - B * K).charpoly(S).as_expr()
+                        - (S**3 + (v - 3) * S**2 + (v - 3) * S + (2 * v - 7))) == 0
+    result = core.entry_stable_intervals(plant, [[current, 0.0, 0.0]], 0, 0)
+    (a, b), (c, d) = result.intervals
+    # the touch is a double root: before the refinement it was off by up to 6e-8 (√eps level);
+    # now by rounding of the data, a few eps times the size of the gains involved
+    scale = max(abs(current), 4.0)
+    assert b == pytest.approx(4.0, abs=64 * np.finfo(float).eps * scale)
+    assert c == b and a == pytest.approx(3.5, abs=64 * np.finfo(float).eps * scale) and d == math.inf
+
+
+@pytest.mark.parametrize("rows", TOUCHING_REALISATIONS)
+def test_at_exactly_the_touching_value_the_loop_is_on_the_boundary_and_in_no_interval(rows):
+    plant = _touching_plant(rows)
+    result = core.entry_stable_intervals(plant, [[4.0, 0.0, 0.0]], 0, 0)
+    # at v = 4: s³ + s² + s + 1 = (s + 1)(s² + 1) (sympy factor): poles ±j on the axis
+    assert sympy.factor(S**3 + S**2 + S + 1) == (S + 1) * (S**2 + 1)
+    assert result.current_verdict == core.ON_THE_BOUNDARY
+    assert not result.contains(4.0)
+    assert result.intervals[0][0] == pytest.approx(3.5, rel=1e-12)
+    assert result.intervals[-1][1] == math.inf
+
+
+# ---------------------------------------------------------------------------------------------
+# The published benchmark models (COMPleib 1.1, Leibfritz 2004) in /work/shared/edge-cases
+# ---------------------------------------------------------------------------------------------
+EDGE_CASES = Path("/work/shared/edge-cases")
+
+
+def _edge_case(name):
+    if not (EDGE_CASES / f"{name}.toml").exists():
+        pytest.skip("the shared edge-case models are not on this machine")
+    plant = core.load_plant_file(EDGE_CASES / f"{name}.toml")
+    K = np.array(json.loads((EDGE_CASES / f"{name}-gain.json").read_text())["K"])
+    return plant, K
+
+
+def test_roc4_gives_one_wide_interval_without_an_index_error():
+    plant, K = _edge_case("ROC4")
+    result = core.entry_stable_intervals(plant, K, 0, 0)
+    # edge-cases/README.md: 50-digit bisection gives one interval of about [−7.887987e9, 1.6770825e10].
+    # The ends are ill-conditioned (poles approach transfer-function zeros near the axis); in
+    # double precision they come out within 1e-3 relative.
+    assert len(result.intervals) == 1
+    low, high = result.intervals[0]
+    assert low == pytest.approx(-7.887987e9, rel=1e-3) and high == pytest.approx(1.6770825e10, rel=1e-3)
+    assert result.current_is_stable and result.contains(result.current_value)
+
+
+def test_bdt1_current_value_and_interval_agree():
+    plant, K = _edge_case("BDT1")
+    result = core.entry_stable_intervals(plant, K, 0, 0)
+    # edge-cases/README.md: 50-digit bisection puts the stable interval at about
+    # [−4.901528e11, −4.900534e11], containing the current value −4.90139e11
+    assert len(result.intervals) == 1
+    low, high = result.intervals[0]
+    assert low == pytest.approx(-4.901528e11, rel=2e-6) and high == pytest.approx(-4.900534e11, rel=2e-6)
+    assert result.current_is_stable and result.contains(K[0, 0])
+
+
+def _suite_cases():
+    """Every plant and gain of this file, the bundled plants with an LQR gain, and the edge cases."""
+    cases = []
+    for K, _, sample_time in BOUNDARY_CASES.values():
+        cases.append((_chain(len(K[0]), sample_time), np.asarray(K, dtype=float)))
+    for rows in TOUCHING_REALISATIONS:
+        for current in (0.0, 3.6, 4.0, 10.0):
+            cases.append((_touching_plant(rows), np.array([[current, 0.0, 0.0]])))
+    from gainboard.sample_plants import bundled_plant_files
+
+    for path in bundled_plant_files().values():
+        plant = core.load_plant_file(path)
+        try:
+            cases.append((plant, core.design_lqr(plant).gain))
+        except core.GainboardError:
+            pass
+    for name in ("ROC4", "BDT1"):
+        if (EDGE_CASES / f"{name}.toml").exists():
+            cases.append(_edge_case(name))
+    return cases
+
+
+def test_the_current_verdict_agrees_with_the_intervals_on_every_case():
+    checked = 0
+    for plant, K in _suite_cases():
+        for row in range(plant.input_count):
+            for col in range(plant.state_count):
+                result = core.entry_stable_intervals(plant, K, row, col)
+                where = f"{plant.name} entry ({row}, {col}) = {K[row, col]!r}"
+                assert result.current_is_stable == result.contains(float(K[row, col])), where
+                assert result.current_verdict == core.analyze_closed_loop(plant, K).verdict or (
+                    # the sweep judges its own computation of the same poles; both use the one band
+                    result.current_verdict != core.STABLE) == (not core.analyze_closed_loop(plant, K).stable), where
+                checked += 1
+    assert checked > 50
