@@ -411,7 +411,7 @@ def _poles_and_counts_each(families, value_lists) -> list[tuple[np.ndarray, np.n
             by_order.setdefault(family.order, []).append(position)
     for o, members in by_order.items():
         matrices = np.concatenate([families[p].moving_closed_loop(value_lists[p]) for p in members])
-        moving = np.linalg.eigvals(matrices)
+        moving = np.linalg.eigvals(matrices).astype(complex, copy=False)  # real when all poles are
         # the one rule, with the band of the whole closed loop at each value (not of its moving
         # part), so that a count of 0 is exactly the verdict "stable" of decide_stability
         tolerances = np.concatenate([_band_at(families[p], value_lists[p]) for p in members])
