@@ -257,3 +257,38 @@ def test_the_current_verdict_agrees_with_the_intervals_on_every_case():
                     result.current_verdict != core.STABLE) == (not core.analyze_closed_loop(plant, K).stable), where
                 checked += 1
     assert checked > 50
+
+
+# ---------------------------------------------------------------------------------------------
+# Extreme finite entries: one line on stderr, never a traceback or a RuntimeWarning
+# ---------------------------------------------------------------------------------------------
+EXTREME_PLANTS = {
+    # issue 11 item 3: a traceback in sweep and five RuntimeWarnings in assign before
+    "huge": 'name = "huge"\n[model]\nA = [[1e300, 1e300], [1e300, -1e300]]\nB = [[0.0], [1.0]]\n',
+    # issue 11 item 3: "SVD did not converge" tracebacks in evaluate and assign before
+    "subnormal": 'name = "subnormal"\n[model]\nA = [[1e-310, 1.0], [-2.0, -3.0]]\nB = [[0.0], [1e-310]]\n',
+}
+
+
+@pytest.mark.parametrize("name", list(EXTREME_PLANTS))
+@pytest.mark.parametrize("command", [["sweep", "--gain", "[[1, 1]]", "--entry", "1,1"],
+                                     ["assign", "--poles", "-1,-2"],
+                                     ["evaluate", "--gain", "[[1, 1]]"]])
+def test_extreme_entries_are_refused_in_one_line(name, command, tmp_path):
+    import subprocess
+    import sys
+
+    path = tmp_path / f"{name}.toml"
+    path.write_text(EXTREME_PLANTS[name])
+    argv = [sys.executable, "-m", "gainboard.app.cli", command[0], str(path), *command[1:]]
+    finished = subprocess.run(argv, capture_output=True, text=True, timeout=120)
+    lines = finished.stderr.splitlines()
+    assert finished.returncode == 2 and len(lines) == 1, finished.stderr
+    assert "Traceback" not in finished.stderr and "Warning" not in finished.stderr
+    assert ("too large" in lines[0]) if name == "huge" else ("smallest normal double" in lines[0])
+
+
+def test_an_extreme_gain_is_refused_by_the_core():
+    plant = _chain(2)
+    with pytest.raises(core.GainError, match="too large"):
+        plant.check_gain([[1e200, 1.0]])
