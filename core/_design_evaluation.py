@@ -24,6 +24,7 @@ from ._closed_loop import (
 )
 from ._errors import GainboardError, GainError
 from ._margins import loop_margins
+from ._number_range import check_analysable
 from ._plant import Plant
 from ._responses import ResponseSet, simulate_responses
 from ._single_entry import _all_entry_intervals, _checked_entry_views, _sensitivity_from_eigensystem
@@ -219,6 +220,7 @@ def evaluate_design(plant: Plant, gain, options: EvaluationOptions | None = None
     """
     options = options or EvaluationOptions()
     K = plant.check_gain(gain)
+    check_analysable(plant, K)
     specs = options.specs if options.specs is not None else plant.specs
     messages: list[str] = []
 

@@ -16,7 +16,7 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__: list[str] = []  # used by Plant and Plant.check_gain
+__all__: list[str] = []  # used where analyses start (see check_analysable)
 
 #: Largest magnitude accepted in a plant or a gain.
 LARGEST_ENTRY = 1e150
@@ -45,3 +45,20 @@ def extreme_entry_problem(matrix: np.ndarray, name: str) -> str | None:
                 f"({_SMALLEST_NORMAL:.3g}) and cannot be computed with: set it to 0 if it is negligible, "
                 "or change the units so that it is not")
     return None
+
+
+def check_analysable(plant, gain=None, error: type[Exception] | None = None) -> None:
+    """Raise ``error`` (default AnalysisError) with one line when a number is out of range.
+
+    Called where an analysis starts (evaluation, pole assignment, single-entry intervals), not
+    when a plant or a gain is built: files and exports keep every finite double.
+    """
+    from ._errors import AnalysisError
+
+    matrices = [("A", plant.A), ("B", plant.B), ("C", plant.C), ("D", plant.D)]
+    if gain is not None:
+        matrices.append(("K", gain))
+    for name, matrix in matrices:
+        problem = extreme_entry_problem(matrix, name)
+        if problem:
+            raise (error or AnalysisError)(problem)

@@ -39,6 +39,7 @@ from ._closed_loop import (
     sort_poles,
 )
 from ._errors import PlacementError
+from ._number_range import check_analysable
 from ._plant import Plant
 from ._structure import (
     WEAK_STRUCTURE_MARGIN,
@@ -568,6 +569,7 @@ def assign_poles(plant: Plant, targets, *, method: str = "auto", complete_conjug
         raise PlacementError(f"assign_poles needs a Plant, got {type(plant).__name__}")
     if method not in PLACEMENT_METHODS:
         raise PlacementError(f"unknown placement method {method!r}; choose one of {', '.join(PLACEMENT_METHODS)}")
+    check_analysable(plant, error=PlacementError)
     A, B = plant.A, plant.B
     n, m = plant.state_count, plant.input_count
     requested, notes = _prepare_targets(targets, n, complete_conjugates)

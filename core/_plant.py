@@ -14,7 +14,6 @@ import scipy.linalg
 
 from ._arrays import read_only
 from ._errors import PlantError
-from ._number_range import extreme_entry_problem
 from ._noise import NoiseIntensities, sampled_noise_intensities
 
 __all__ = [
@@ -228,9 +227,6 @@ class Plant:
         D = np.zeros((p, m)) if self.D is None else as_real_matrix(self.D, "D", f"{p}×{m}")
         _check_shape(D, "D", p, m, f"{p}×{m} (outputs × inputs)")
         for key, value in (("A", A), ("B", B), ("C", C), ("D", D)):
-            problem = extreme_entry_problem(value, key)
-            if problem:
-                raise PlantError(problem)
             set_(key, _frozen(value))
 
         if self.sample_time is not None:
@@ -350,9 +346,6 @@ class Plant:
             raise GainError(f"K is {found} but must be {m}×{n} (one row per input, one column per state)")
         if not np.all(np.isfinite(K)):
             raise GainError("K has a non-finite entry (inf or nan); every gain must be a finite number")
-        problem = extreme_entry_problem(K, "K")
-        if problem:
-            raise GainError(problem)
         return K
 
 

@@ -40,6 +40,7 @@ import scipy.linalg
 from ._arrays import read_only
 from ._closed_loop import _Eigensystem, _eigensystem
 from ._errors import GainError
+from ._number_range import check_analysable
 from ._plant import Plant
 from ._stability import StabilityDecision, boundary_tolerance, decide_stability
 from ._single_entry_family import (
@@ -98,6 +99,7 @@ def _checked_entry(plant: Plant, K, row, col) -> tuple[np.ndarray, int, int]:
     if not isinstance(plant, Plant):
         raise GainError(f"the plant must be a gainboard Plant, but {type(plant).__name__} was given")
     gain = plant.check_gain(K)
+    check_analysable(plant, gain, GainError)
     row = _check_index(row, plant.input_count, "row", plant.input_names)
     col = _check_index(col, plant.state_count, "column", plant.state_names)
     return gain, row, col
@@ -1005,7 +1007,9 @@ def all_entry_stable_intervals(plant: Plant, K) -> dict[tuple[int, int], StableI
     """
     if not isinstance(plant, Plant):
         raise GainError(f"the plant must be a gainboard Plant, but {type(plant).__name__} was given")
-    return _all_entry_intervals(plant, plant.check_gain(K), {})
+    gain = plant.check_gain(K)
+    check_analysable(plant, gain, GainError)
+    return _all_entry_intervals(plant, gain, {})
 
 
 def _all_entry_intervals(plant: Plant, gain: np.ndarray, known: dict) -> dict[tuple[int, int], StableIntervals]:

@@ -288,7 +288,11 @@ def test_extreme_entries_are_refused_in_one_line(name, command, tmp_path):
     assert ("too large" in lines[0]) if name == "huge" else ("smallest normal double" in lines[0])
 
 
-def test_an_extreme_gain_is_refused_by_the_core():
+def test_an_extreme_gain_is_refused_where_analyses_start_but_a_plant_keeps_any_double():
     plant = _chain(2)
     with pytest.raises(core.GainError, match="too large"):
-        plant.check_gain([[1e200, 1.0]])
+        core.entry_stable_intervals(plant, [[1e200, 1.0]], 0, 0)
+    with pytest.raises(core.AnalysisError, match="too large"):
+        core.evaluate_design(plant, [[1e200, 1.0]])
+    # files and exports keep every finite double: building the plant is not refused
+    core.Plant(A=[[5e-324, 1.0], [0.0, 1.7976931348623157e308]], B=[[0.0], [1.0]])
