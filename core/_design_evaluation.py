@@ -245,7 +245,8 @@ def evaluate_design(plant: Plant, gain, options: EvaluationOptions | None = None
         plant, K, initial_state=options.initial_state, horizon=options.horizon, settling_band=band
     )
     if responses.diverging:
-        messages.append(f"The closed loop is unstable: {responses.diverging_reason}")
+        reason = responses.diverging_reason  # it names the instability itself ("the closed loop is unstable: …")
+        messages.append(reason[:1].upper() + reason[1:])
     if responses.step is None and responses.step_unavailable_reason:
         messages.append(f"No reference step: {responses.step_unavailable_reason}")
 

@@ -53,6 +53,7 @@ from ._propagation import (
     propagate_many,
     step_energies,
 )
+from ._stability import boundary_tolerance
 
 __all__ = [
     "Response",
@@ -221,10 +222,14 @@ def _pole_list_text(poles, sampled: bool) -> str:
 
 
 def _stability_tolerance(loop: np.ndarray, sampled: bool) -> float:
-    """Rounding level of the closed-loop eigenvalues (in 1/s, or in |z| when sampled)."""
-    n = loop.shape[0]
-    size = float(np.abs(loop).sum(axis=0).max()) if n else 0.0  # ‖loop‖₁
-    return 100.0 * n * _EPS * (max(size, 1.0) if sampled else size)
+    """Rounding level of the closed-loop eigenvalues (in 1/s, or in |z| when sampled): the one band.
+
+    :func:`gainboard.core.boundary_tolerance` (100 · n · eps · ‖loop‖_F), so that what the
+    responses call diverging or on the boundary is what the pole report calls so.
+    """
+    if loop.shape[0] == 0:
+        return 0.0
+    return boundary_tolerance(float(np.linalg.norm(loop)), loop.shape[0])
 
 
 def _classify_poles(poles, loop, sampled, tolerance=None):

@@ -296,3 +296,30 @@ def test_an_extreme_gain_is_refused_where_analyses_start_but_a_plant_keeps_any_d
         core.evaluate_design(plant, [[1e200, 1.0]])
     # files and exports keep every finite double: building the plant is not refused
     core.Plant(A=[[5e-324, 1.0], [0.0, 1.7976931348623157e308]], B=[[0.0], [1.0]])
+
+
+# ---------------------------------------------------------------------------------------------
+# Cosmetics of the command line (issue 11 item 9)
+# ---------------------------------------------------------------------------------------------
+def test_the_unstable_message_says_its_prefix_once():
+    plant = _chain(3)
+    # s³ − 6s² + 11s − 6 = (s − 1)(s − 2)(s − 3): unstable (sympy factor in the test above)
+    evaluation = core.evaluate_design(plant, [[-6.0, 11.0, -6.0]])
+    unstable = [m for m in evaluation.messages if "unstable" in m.lower()]
+    assert unstable and all(m.lower().count("the closed loop is unstable") == 1 for m in unstable)
+
+
+def test_piping_json_into_a_reader_that_stops_early_gives_no_traceback(tmp_path):
+    import subprocess
+    import sys
+
+    path = _write_chain_file(tmp_path, 4)
+    argv = [sys.executable, "-m", "gainboard.app.cli", "sweep", path, "--gain", "[[24, 50, 35, 10]]",
+            "--entry", "1,1", "--json"]
+    # the reader takes one line and closes the pipe, like `| head -1`
+    writer = subprocess.Popen(argv, stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+    first = writer.stdout.readline()
+    writer.stdout.close()
+    _, error = writer.communicate(timeout=120)
+    assert first.strip() == b"{"
+    assert b"Traceback" not in error and b"BrokenPipe" not in error, error.decode()
