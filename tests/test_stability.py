@@ -323,3 +323,16 @@ def test_piping_json_into_a_reader_that_stops_early_gives_no_traceback(tmp_path)
     _, error = writer.communicate(timeout=120)
     assert first.strip() == b"{"
     assert b"Traceback" not in error and b"BrokenPipe" not in error, error.decode()
+
+
+def test_the_multiplicity_refusal_states_the_real_limit():
+    # PBH: rank(A − BK − λI) ≥ n − rank(B), so a pole's geometric multiplicity is at most the
+    # number of inputs; its algebraic multiplicity can reach n (Jordan blocks; Kailath, Linear
+    # Systems, 1980, §3.2, from memory). Two inputs, four states, a pole requested four times.
+    A = np.diag(np.ones(3), 1)
+    B = np.array([[0.0, 0.0], [1.0, 0.0], [0.0, 0.0], [0.0, 1.0]])
+    with pytest.raises(core.PlacementError) as refused:
+        core.assign_poles(core.Plant(A=A, B=B), [-2.0, -2.0, -2.0, -2.0])
+    message = str(refused.value)
+    assert "up to 4 times" in message and "at most 2 independent eigenvectors" in message
+    assert "Jordan block" in message and "at most 2 closed-loop poles can coincide" not in message
