@@ -336,3 +336,27 @@ def test_the_multiplicity_refusal_states_the_real_limit():
     message = str(refused.value)
     assert "up to 4 times" in message and "at most 2 independent eigenvectors" in message
     assert "Jordan block" in message and "at most 2 closed-loop poles can coincide" not in message
+
+
+# ---------------------------------------------------------------------------------------------
+# Unstable responses: overflow handled and reported, no RuntimeWarning (issue 12)
+# ---------------------------------------------------------------------------------------------
+@pytest.mark.parametrize("limits", [None, ((-1.0, 1.0),)])
+@pytest.mark.parametrize("pole", [842.0, 1485.9])
+def test_an_overflowing_unstable_response_is_reported_without_warnings(pole, limits):
+    import warnings
+
+    # x' = x + u with u = −Kx, K = 1 − pole: x(t) = e^{pole·t} (derived); over a 1000 s horizon
+    # e^{842·1000} is far beyond the largest double, 1.8e308 (IEEE 754, from memory)
+    plant = core.Plant(A=[[1.0]], B=[[1.0]], C=[[1.0]], input_limits=limits)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        result = core.simulate_responses(plant, [[1.0 - pole]], horizon=1000.0)
+        evaluation = core.evaluate_design(plant, [[1.0 - pole]], core.EvaluationOptions(horizon=1000.0))
+    assert result.diverging and evaluation.responses.diverging
+    initial = result.initial
+    assert initial.diverged_at is not None and 0.0 < initial.diverged_at < 1000.0
+    assert np.all(np.isfinite(initial.states)) and np.all(np.isfinite(initial.outputs))
+    # the trajectory shown follows e^{pole·t} up to where it was cut (closed form above)
+    shown = initial.time <= initial.diverged_at
+    np.testing.assert_allclose(initial.states[shown, 0], np.exp(pole * initial.time[shown]), rtol=1e-6)
