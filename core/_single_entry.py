@@ -548,7 +548,7 @@ def _classify_pieces(family: RankOneFamily, exact_points: list[BoundaryPoint], p
             consistent = False
     # the current value must agree with the piece it lies in (badly scaled entries: the
     # exact crossings can be off, and the verdict at v0 is the one the user sees)
-    here = _piece_of(gains, v0)
+    here = _piece_of(gains, v0, family)
     if here is not None and (counts[here] == 0) != (quick[0] == 0):
         consistent = False
     if consistent:
@@ -559,7 +559,7 @@ def _classify_pieces(family: RankOneFamily, exact_points: list[BoundaryPoint], p
         reach = _piece_reach(family, gains)
         edges = [-math.inf] + gains + [math.inf]
         probes = _piece_probes(edges, reach, v0)
-        here = _piece_of(gains, v0)
+        here = _piece_of(gains, v0, family)
         if here is not None and v0 not in probes[here][0]:
             # probe the current value too, so that a change between it and the piece's
             # other probes is located (and the verdict at v0 cannot contradict its piece)
@@ -718,8 +718,13 @@ def _with_refined_touches(family: RankOneFamily, gains: list[float], counts: lis
     return gains, points
 
 
-def _piece_of(gains: list[float], value: float) -> int | None:
-    """Index of the piece (between consecutive crossing gains) holding ``value``; None on a gain."""
+def _piece_of(gains: list[float], value: float, family: RankOneFamily | None = None) -> int | None:
+    """Index of the piece (between consecutive crossing gains) holding ``value``; None on a gain.
+
+    With ``family``, a value within :func:`gain_tolerance` of a gain counts as on it.
+    """
+    if family is not None and any(abs(value - gain) <= gain_tolerance(family, gain) for gain in gains):
+        return None
     edges = [-math.inf] + list(gains) + [math.inf]
     for k in range(len(edges) - 1):
         if edges[k] < value < edges[k + 1]:
@@ -868,18 +873,25 @@ def _intervals_result(family: RankOneFamily, entry, label: str, fixed_reason, ev
         # the loop at v0 itself has a pole on the boundary inside a stable piece: a touch that
         # the crossings missed (or placed a rounding error away); v0 is not a stable value
         low, high = inside[0]
-        replaced = {(low, high)}
-        for other in intervals:
-            # a touching end a rounding error from v0 is the same point: v0 takes its place
-            if other[1] == low and v0 - low <= tolerance:
-                replaced.add(other)
-                low = other[0]
-            elif other[0] == high and high - v0 <= tolerance:
-                replaced.add(other)
-                high = other[1]
-        intervals = tuple(sorted([i for i in intervals if i not in replaced] + [(low, v0), (v0, high)]))
+        replaced = {inside[0]}
+        near_low, near_high = v0 - low <= tolerance, high - v0 <= tolerance
+        below = next((i for i in intervals if i[1] == low), None) if near_low else None
+        above = next((i for i in intervals if i[0] == high), None) if near_high else None
+        if below:  # a touching end a rounding error below v0: v0 takes its place
+            replaced.add(below)
+            new = [(below[0], v0), (v0, high)]
+        elif above:  # the same, above
+            replaced.add(above)
+            new = [(low, v0), (v0, above[1])]
+        elif near_low:  # a crossing end a rounding error from v0: v0 becomes that end
+            new = [(v0, high)]
+        elif near_high:
+            new = [(low, v0)]
+        else:  # a touch at v0 that the crossings missed
+            new = [(low, v0), (v0, high)]
+        intervals = tuple(sorted([i for i in intervals if i not in replaced] + new))
         warnings.append(f"at the current value {v0:.9g} of {label} a pole is {decision.verdict} "
-                        "(margin within rounding): that value splits its stable interval")
+                        "(margin within rounding): that value is not in a stable interval")
 
     crossings = []
     for point in points:
