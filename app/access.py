@@ -13,15 +13,26 @@ raises :class:`AccessError`, which the command line reports on one line, exit 2)
   ready-to-share link ``http://HOST:PORT/login?token=...`` that signs in whoever
   opens it.
 
-Signing in sets a signed cookie (named ``user``, holding the name the person gave,
-shown to teammates in live rooms) that lasts :data:`LOGIN_DAYS` day; the cookie is
+Signing in sets a signed cookie (named ``user``, holding a random sign-in id and the
+name the person gave, shown to teammates in live rooms) that lasts :data:`LOGIN_DAYS`
+day; signing out revokes its id on the server, so a copy of the cookie kept elsewhere
+no longer signs in (revocations live in the memory of one server process). The cookie is
 signed with the cookie secret, from ``--cookie-secret-file`` or
 ``GAINBOARD_COOKIE_SECRET`` or generated at each start (then a restart signs
 everyone out). Several server processes given the same cookie secret accept each
 other's sign-ins on the same host name. The live connection of a page is refused
 (HTTP 403) without a valid cookie, and wrong secrets are answered after a pause to
-slow down guessing. The login page is served by this module with no external
-resources, so it works in air-gapped labs.
+slow down guessing. Attempts are limited (:class:`SignInLimiter`): after
+:data:`FREE_FAILURES` wrong secrets from one client address, or
+:data:`FREE_FAILURES_ALL` from all clients together, further attempts are answered
+429 without being checked until a wait has passed, which doubles with each further
+failure up to :data:`LONGEST_WAIT` seconds; a right secret clears that client's
+count. The login page is served by this module with no external resources, so it
+works in air-gapped labs.
+
+A password from ``$GAINBOARD_PASSWORD`` is stripped of surrounding white space like
+the first line of a password file (``export GAINBOARD_PASSWORD=" secret "`` and a file
+holding `` secret `` both give ``secret``).
 """
 
 from __future__ import annotations
@@ -32,6 +43,8 @@ import ipaddress
 import os
 import secrets
 import socket
+import threading
+import time
 from dataclasses import dataclass
 from html import escape
 from pathlib import Path
@@ -57,6 +70,11 @@ __all__ = [
     "LOGOUT_PATH",
     "USER_COOKIE",
     "LOGIN_DAYS",
+    "SignInLimiter",
+    "FREE_FAILURES",
+    "FREE_FAILURES_ALL",
+    "LONGEST_WAIT",
+    "name_from_cookie",
 ]
 
 #: Environment variable holding the password (instead of --password-file).
@@ -77,6 +95,87 @@ LOGIN_DAYS = 1
 WRONG_SECRET_PAUSE = 1.0
 #: Longest name a person may give.
 MAX_NAME_LENGTH = 40
+#: Wrong secrets one client may send before it has to wait.
+FREE_FAILURES = 5
+#: Wrong secrets all clients together may send before everyone has to wait (a guesser with many addresses).
+FREE_FAILURES_ALL = 50
+#: The first wait after the free failures, in seconds; it doubles with each further failure.
+FIRST_WAIT = 2.0
+#: The longest wait, in seconds.
+LONGEST_WAIT = 300.0
+#: A count of failures is forgotten after this long without a failure, in seconds.
+FORGET_AFTER = 900.0
+
+
+class SignInLimiter:
+    """Counts wrong secrets per client and in all, and says how long an attempt must still wait.
+
+    Parameters
+    ----------
+    clock : callable, optional
+        Seconds from any fixed start (default :func:`time.monotonic`); tests pass their own.
+
+    Examples
+    --------
+    >>> now = [0.0]
+    >>> limiter = SignInLimiter(clock=lambda: now[0])
+    >>> for _ in range(FREE_FAILURES):
+    ...     limiter.failed("192.0.2.7")
+    >>> limiter.wait_for("192.0.2.7"), limiter.wait_for("192.0.2.8")
+    (2.0, 0.0)
+    >>> now[0] = 2.0
+    >>> limiter.wait_for("192.0.2.7")
+    0.0
+    """
+
+    _ALL = "*all clients*"
+
+    def __init__(self, clock=time.monotonic):
+        self._clock = clock
+        self._lock = threading.Lock()
+        self._failures: dict[str, tuple[int, float]] = {}  # client -> (count, time of the last failure)
+
+    def _wait(self, key: str, free: int, now: float) -> float:
+        count, last = self._failures.get(key, (0, 0.0))
+        if count < free or now - last > FORGET_AFTER:
+            return 0.0
+        wait = min(LONGEST_WAIT, FIRST_WAIT * 2.0 ** (count - free))
+        return max(0.0, last + wait - now)
+
+    def wait_for(self, client: str) -> float:
+        """Seconds ``client`` must still wait before an attempt is checked (0: check it now)."""
+        now = self._clock()
+        with self._lock:
+            return max(self._wait(client, FREE_FAILURES, now), self._wait(self._ALL, FREE_FAILURES_ALL, now))
+
+    def failed(self, client: str) -> None:
+        """Record a wrong secret from ``client``."""
+        now = self._clock()
+        with self._lock:
+            for key in (client, self._ALL):
+                count, last = self._failures.get(key, (0, now))
+                self._failures[key] = (1 if now - last > FORGET_AFTER else count + 1, now)
+            if len(self._failures) > 10_000:  # bounded memory under a spray of addresses
+                self._failures = {key: value for key, value in self._failures.items()
+                                  if now - value[1] <= FORGET_AFTER}
+
+    def succeeded(self, client: str) -> None:
+        """A right secret from ``client``: its count starts again."""
+        with self._lock:
+            self._failures.pop(client, None)
+
+
+def name_from_cookie(value: str | None) -> str | None:
+    """The name a sign-in cookie holds ("<sign-in id>.<name>"), or None.
+
+    Examples
+    --------
+    >>> name_from_cookie("k3Yq2b7pQ8yS0uZr1f9vXw.Ana Lopez")
+    'Ana Lopez'
+    """
+    if not value or "." not in value:
+        return None
+    return value.split(".", 1)[1] or "guest"
 
 
 class AccessError(core.GainboardError):
@@ -184,7 +283,10 @@ def access_settings(address: str, *, password_file=None, token: bool = False, co
         token, a short password, a short cookie secret or an unreadable file.
     """
     environ = os.environ if environ is None else environ
-    password = _read_secret_file(password_file, "password") if password_file else environ.get(PASSWORD_VARIABLE) or None
+    if password_file:
+        password = _read_secret_file(password_file, "password")
+    else:  # stripped like a file's first line: a quoted value with spaces must still sign in
+        password = (environ.get(PASSWORD_VARIABLE) or "").strip() or None
     if password is not None and len(password) < MIN_PASSWORD_LENGTH:
         raise AccessError(f"the password has {len(password)} characters; use at least {MIN_PASSWORD_LENGTH}")
     if password is None and not token:
@@ -202,7 +304,7 @@ def access_settings(address: str, *, password_file=None, token: bool = False, co
     if cookie_secret_file:
         cookie_secret = _read_secret_file(cookie_secret_file, "cookie secret")
     else:
-        cookie_secret = environ.get(COOKIE_SECRET_VARIABLE) or secrets.token_urlsafe(32)
+        cookie_secret = (environ.get(COOKIE_SECRET_VARIABLE) or "").strip() or secrets.token_urlsafe(32)
     if len(cookie_secret) < MIN_COOKIE_SECRET_LENGTH:
         raise AccessError(
             f"the cookie secret has {len(cookie_secret)} characters; use at least {MIN_COOKIE_SECRET_LENGTH} "
@@ -309,7 +411,7 @@ def login_page(settings: AccessSettings, next_url: str = "/", error: str = "", n
 
 
 class _AccessHandler(RequestHandler):
-    settings_for_access: AccessSettings  # set on the subclass made for each server
+    provider: "WorkbenchLogin"  # set on the subclass made for each server
 
     def set_default_headers(self) -> None:
         self.set_header("Cache-Control", "no-store")
@@ -317,42 +419,63 @@ class _AccessHandler(RequestHandler):
         self.set_header("Content-Type", "text/html; charset=UTF-8")
 
     def _sign_in(self, name: str) -> None:
-        self.set_secure_cookie(USER_COOKIE, name or "guest", expires_days=LOGIN_DAYS, httponly=True,
-                               samesite="Lax", path="/")
+        self.provider.limiter.succeeded(self.request.remote_ip)
+        value = f"{secrets.token_urlsafe(16)}.{name or 'guest'}"
+        self.set_secure_cookie(USER_COOKIE, value, expires_days=LOGIN_DAYS, httponly=True, samesite="Lax", path="/")
+
+    async def _refused_for_now(self, next_url: str, name: str = "") -> bool:
+        """Answer 429 if this client (or everyone) must wait; True when answered."""
+        wait = self.provider.limiter.wait_for(self.request.remote_ip)
+        if wait <= 0:
+            return False
+        self.set_status(429)
+        self.set_header("Retry-After", str(int(wait) + 1))
+        self.write(login_page(self.provider.access, next_url,
+                              f"Too many wrong attempts; wait {int(wait) + 1} s before trying again.", name))
+        return True
+
+    async def _wrong(self, next_url: str, error: str, name: str = "") -> None:
+        self.provider.limiter.failed(self.request.remote_ip)
+        await asyncio.sleep(WRONG_SECRET_PAUSE)
+        self.set_status(403)
+        self.write(login_page(self.provider.access, next_url, error, name))
 
 
 class _LoginHandler(_AccessHandler):
     async def get(self) -> None:
-        settings = self.settings_for_access
+        settings = self.provider.access
         next_url = _safe_next(self.get_argument("next", "/"))
         token = self.get_argument("token", "")
         if token:
+            if await self._refused_for_now(next_url):
+                return
             if settings.accepts_token(token):
                 self._sign_in(clean_display_name(self.get_argument("name", "")))
                 self.redirect(next_url)
                 return
-            await asyncio.sleep(WRONG_SECRET_PAUSE)
-            self.set_status(403)
-            self.write(login_page(settings, next_url, "That access link is not valid (the server may have been "
-                                                      "restarted with a new token); ask for a new link."))
+            await self._wrong(next_url, "That access link is not valid (the server may have been restarted with a "
+                                        "new token); ask for a new link.")
             return
         self.write(login_page(settings, next_url))
 
     async def post(self) -> None:
-        settings = self.settings_for_access
+        settings = self.provider.access
         next_url = _safe_next(self.get_argument("next", "/"))
         name = clean_display_name(self.get_argument("name", ""))
+        if await self._refused_for_now(next_url, name):
+            return
         if settings.accepts(self.get_argument("secret", "")):
             self._sign_in(name)
             self.redirect(next_url)
             return
-        await asyncio.sleep(WRONG_SECRET_PAUSE)
-        self.set_status(403)
-        self.write(login_page(settings, next_url, "That password or token is not right.", name))
+        await self._wrong(next_url, "That password or token is not right.", name)
 
 
 class _LogoutHandler(_AccessHandler):
     def get(self) -> None:
+        value = self.get_secure_cookie(USER_COOKIE, max_age_days=LOGIN_DAYS)
+        if value:
+            self.provider.revoke(value.decode("utf-8", errors="replace"))
         self.clear_cookie(USER_COOKIE, path="/")
         self.write(_page("gainboard: signed out",
                          f'<h1>gainboard <span>workbench</span></h1><p>You are signed out.</p>'
@@ -367,17 +490,39 @@ class WorkbenchLogin(AuthProvider):
     settings : AccessSettings
     """
 
-    def __init__(self, settings: AccessSettings):
+    def __init__(self, settings: AccessSettings, clock=time.monotonic):
         self.access = settings
-        self._login = type("LoginHandler", (_LoginHandler,), {"settings_for_access": settings})
-        self._logout = type("LogoutHandler", (_LogoutHandler,), {"settings_for_access": settings})
+        self.limiter = SignInLimiter(clock)
+        self._clock = clock
+        self._revoked: dict[str, float] = {}  # sign-in id -> when it was revoked
+        self._revoked_lock = threading.Lock()
+        self._login = type("LoginHandler", (_LoginHandler,), {"provider": self})
+        self._logout = type("LogoutHandler", (_LogoutHandler,), {"provider": self})
         super().__init__()
+
+    def revoke(self, cookie_value: str) -> None:
+        """Refuse the sign-in this cookie value carries from now on (signing out)."""
+        sign_in_id = cookie_value.split(".", 1)[0]
+        now = self._clock()
+        with self._revoked_lock:
+            # a cookie expires after LOGIN_DAYS anyway: older revocations need not be kept
+            self._revoked = {key: when for key, when in self._revoked.items() if now - when < LOGIN_DAYS * 86400}
+            self._revoked[sign_in_id] = now
+
+    def user_of(self, cookie_value: str | None) -> str | None:
+        """The signed-in name of a (verified) cookie value, or None if it is malformed or revoked."""
+        name = name_from_cookie(cookie_value)
+        if name is None:
+            return None
+        with self._revoked_lock:
+            revoked = cookie_value.split(".", 1)[0] in self._revoked
+        return None if revoked else name
 
     @property
     def get_user(self):
         def current_user(handler):
             value = handler.get_secure_cookie(USER_COOKIE, max_age_days=LOGIN_DAYS)
-            return value.decode("utf-8", errors="replace") if value else None
+            return self.user_of(value.decode("utf-8", errors="replace")) if value else None
 
         return current_user
 

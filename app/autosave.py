@@ -11,21 +11,41 @@ The folder is, in order of precedence: the ``folder`` argument;
 ``$GAINBOARD_DATA_DIR/autosave``; ``$XDG_DATA_HOME/gainboard/autosave``;
 ``~/.local/share/gainboard/autosave``. It is created readable by the user only,
 because designs can be confidential.
+
+A served workbench keeps autosaves per server and per person
+(:meth:`AutosaveStore.for_person`): ``<folder>/<server>/<person>/``, where the
+server is its listening address and port and the person is a hash of the signed-in
+name, or of the browser's id cookie when nobody signs in (see
+:func:`autosave_owner`). So the next teammate on the same server is never offered
+the previous person's design, and two servers sharing one data folder never see
+each other's sessions.
+
+Reading is defensive, because anyone who can write the folder could leave
+anything there: a file is opened with ``O_NOFOLLOW | O_NONBLOCK`` and read only
+if :func:`os.fstat` says it is a regular file (a symlink, FIFO or device is skipped
+without blocking), at most :data:`MAX_AUTOSAVE_BYTES` of it; candidates are read
+newest first and the search stops at the first usable one. Restoring an autosave
+moves its file to the restoring session (:meth:`AutosaveStore.claim`); no other
+file is removed. Autosaves older than :data:`KEEP_DAYS` days are removed by
+:func:`remove_old_autosaves`.
 """
 
 from __future__ import annotations
 
 import contextlib
+import hashlib
 import os
 import re
+import stat
 import time
 import uuid
 from dataclasses import dataclass
 from pathlib import Path
 
-from .design_file import Design, DesignFileError, design_to_json, load_design, write_text_atomically
+from .design_file import MAX_DESIGN_FILE_BYTES, Design, DesignFileError, design_from_json, design_to_json, write_text_atomically
 
-__all__ = ["AutosaveStore", "AutosaveEntry", "default_autosave_folder", "DATA_DIR_VARIABLE"]
+__all__ = ["AutosaveStore", "AutosaveEntry", "default_autosave_folder", "DATA_DIR_VARIABLE", "autosave_owner",
+           "read_regular_file", "remove_old_autosaves", "KEEP_DAYS", "MAX_AUTOSAVE_BYTES"]
 
 #: Environment variable that moves gainboard's data folder (used by tests and portable installs).
 DATA_DIR_VARIABLE = "GAINBOARD_DATA_DIR"
@@ -34,6 +54,105 @@ _PREFIX, _SUFFIX = "session-", ".json"
 _SESSION_ID = re.compile(r"[A-Za-z0-9_-]{1,64}")
 #: Temporary files older than this (seconds) are left over from a crash and may be removed.
 _STALE_TEMPORARY_SECONDS = 3600.0
+#: Autosaves untouched for this many days are removed.
+KEEP_DAYS = 30
+#: Largest autosave file read (the design-file limit).
+MAX_AUTOSAVE_BYTES = MAX_DESIGN_FILE_BYTES
+
+
+def autosave_owner(user: str | None, cookies=None) -> str:
+    """Whose autosaves a session sees: the signed-in name, else this browser's id cookie, else "anyone".
+
+    Parameters
+    ----------
+    user : str or None
+        The signed-in name (None without a login; "guest" when someone signed in without a name).
+    cookies : mapping, optional
+        The request's cookies (``pn.state.cookies``); the browser id is
+        :data:`gainboard.app.request_guard.BROWSER_COOKIE`.
+
+    Returns
+    -------
+    str
+        A folder name: 24 hex digits of a SHA-256 hash (names and ids never appear on disk).
+
+    Examples
+    --------
+    >>> autosave_owner("Ana") == autosave_owner("Ana") != autosave_owner("Ben")
+    True
+    >>> autosave_owner(None, {"gainboard_browser": "x" * 24}) != autosave_owner(None, {})
+    True
+    """
+    from .request_guard import BROWSER_COOKIE
+
+    browser = (cookies or {}).get(BROWSER_COOKIE) or ""
+    if user and user != "guest":
+        who = f"user:{user}"
+    elif browser:
+        who = f"browser:{browser}"
+    else:
+        who = "anyone"
+    return hashlib.sha256(who.encode("utf-8", errors="surrogatepass")).hexdigest()[:24]
+
+
+def read_regular_file(path, limit: int) -> bytes | None:
+    """The bytes of ``path`` if it is a regular file (not a symlink, FIFO or device) of at most ``limit`` bytes.
+
+    Opened with ``O_NOFOLLOW`` (a symlink fails to open) and ``O_NONBLOCK`` (opening a
+    FIFO never waits for a writer), then checked with :func:`os.fstat` on the open file,
+    so a file swapped after a check is never read. None for anything else or any error.
+    """
+    flags = os.O_RDONLY | getattr(os, "O_NOFOLLOW", 0) | getattr(os, "O_NONBLOCK", 0) | getattr(os, "O_CLOEXEC", 0)
+    try:
+        descriptor = os.open(path, flags)
+    except OSError:
+        return None
+    try:
+        info = os.fstat(descriptor)
+        if not stat.S_ISREG(info.st_mode) or info.st_size > limit:
+            return None
+        chunks, remaining = [], limit + 1
+        while remaining > 0:
+            chunk = os.read(descriptor, min(remaining, 1 << 20))
+            if not chunk:
+                break
+            chunks.append(chunk)
+            remaining -= len(chunk)
+        data = b"".join(chunks)
+        return data if len(data) <= limit else None
+    except OSError:
+        return None
+    finally:
+        os.close(descriptor)
+
+
+def remove_old_autosaves(folder, days: float = KEEP_DAYS, now: float | None = None) -> int:
+    """Remove autosaves (``session-*.json`` and stale temporary files) untouched for ``days`` days.
+
+    Looks in ``folder`` and two levels below it (``<server>/<person>/``); never follows
+    symlinks. Returns the number of files removed.
+    """
+    now = time.time() if now is None else now
+    removed = 0
+    folders = [Path(folder)]
+    for _ in range(2):
+        below = []
+        for parent in folders:
+            with contextlib.suppress(OSError):
+                below.extend(child for child in parent.iterdir() if child.is_dir() and not child.is_symlink())
+        folders += below
+        folders = list(dict.fromkeys(folders))
+    for parent in folders:
+        try:
+            candidates = [*parent.glob(f"{_PREFIX}*{_SUFFIX}"), *parent.glob(f".{_PREFIX}*.tmp")]
+        except OSError:
+            continue
+        for path in candidates:
+            with contextlib.suppress(OSError):
+                if now - path.lstat().st_mtime > days * 86400.0:
+                    path.unlink()
+                    removed += 1
+    return removed
 
 
 def default_autosave_folder() -> Path:
@@ -97,6 +216,12 @@ class AutosaveStore:
         self.session_id = uuid.uuid4().hex if session_id is None else _checked_session_id(session_id)
         self._last_text: str | None = None
 
+    @classmethod
+    def for_person(cls, server: str, owner: str, folder=None) -> "AutosaveStore":
+        """The store of one person on one server: ``<folder>/<server>/<owner>/`` (see the module docstring)."""
+        base = Path(folder).expanduser() if folder is not None else default_autosave_folder()
+        return cls(base / _checked_session_id(server) / _checked_session_id(owner))
+
     @property
     def path(self) -> Path:
         """This session's autosave file."""
@@ -129,22 +254,49 @@ class AutosaveStore:
         self._last_text = text
         return self.path
 
-    def _readable_entries(self, include_own: bool):
-        """Autosaved designs newest first, read lazily; unreadable files are skipped."""
+    def _readable_entries(self, include_own: bool, skip=frozenset()):
+        """Autosaved designs newest first, read lazily (one file at a time); unusable files are skipped."""
         try:
             candidates = sorted(self.folder.glob(f"{_PREFIX}*{_SUFFIX}"), key=_modification_time, reverse=True)
         except OSError:
             return
         for path in candidates:
             session_id = path.name[len(_PREFIX):-len(_SUFFIX)]
-            if not _SESSION_ID.fullmatch(session_id) or (session_id == self.session_id and not include_own):
+            if (not _SESSION_ID.fullmatch(session_id) or session_id in skip
+                    or (session_id == self.session_id and not include_own)):
+                continue
+            raw = read_regular_file(path, MAX_AUTOSAVE_BYTES)  # None: a symlink, FIFO, too large, gone
+            if raw is None:
                 continue
             try:
-                saved_at = path.stat().st_mtime
-                design = load_design(path)
-            except (OSError, DesignFileError):  # removed meanwhile, damaged, or from a newer gainboard
+                design = design_from_json(raw.decode("utf-8"), path.name)
+            except (UnicodeDecodeError, DesignFileError):  # damaged, or from a newer gainboard
                 continue
+            saved_at = _modification_time(path) / 1e9
             yield AutosaveEntry(session_id=session_id, path=path, saved_at=saved_at, design=design)
+
+    def first_offerable(self, live_sessions=frozenset()) -> AutosaveEntry | None:
+        """The newest usable autosave of a session that is not open now (``live_sessions``), or None.
+
+        Reads files newest first and stops at the first usable one.
+        """
+        return next(self._readable_entries(False, skip=frozenset(live_sessions)), None)
+
+    def claim(self, entry: AutosaveEntry) -> bool:
+        """Make ``entry``'s file this session's autosave (moved, not copied; nothing else is removed).
+
+        True when moved; False when it had gone meanwhile (then this session simply saves anew).
+        """
+        if entry.path.parent != self.folder:
+            raise DesignFileError(f"the autosave {entry.path.name!r} is not in this person's folder; it is left alone")
+        try:
+            os.replace(entry.path, self.path)
+        except FileNotFoundError:
+            return False
+        except OSError as error:
+            raise DesignFileError(f"cannot take over autosave {str(entry.path)!r}: {error.strerror or error}") from None
+        self._last_text = None
+        return True
 
     def entries(self, include_own: bool = False) -> list[AutosaveEntry]:
         """Every readable autosaved design, newest first.
@@ -206,7 +358,7 @@ class AutosaveStore:
 
 def _modification_time(path: Path) -> int:
     try:
-        return path.stat().st_mtime_ns
+        return path.lstat().st_mtime_ns  # lstat: a symlink is never followed, not even to sort
     except OSError:
         return -1
 

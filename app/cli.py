@@ -17,6 +17,7 @@ from pathlib import Path
 
 import numpy as np
 
+import gainboard
 from gainboard import core
 
 from . import cli_estimator, cli_output
@@ -25,6 +26,10 @@ from .robustness_command import add_robustness_parser
 
 #: Options whose value may start with '-' (negative poles, gains, states).
 _VALUE_OPTIONS = ("--poles", "--gain", "--x0", "--entry", "--range") + cli_estimator.VALUE_OPTIONS
+
+
+#: Environment variables by which a user sets the BLAS thread count (respected by `serve`).
+_BLAS_THREAD_VARIABLES = ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS")
 
 
 class UsageError(Exception):
@@ -48,8 +53,54 @@ def _join_negative_values(argv: list[str]) -> list[str]:
     return joined
 
 
+#: What standard input ("-") was given to, so a second reader is refused instead of reading nothing.
+_stdin_reader: list[str] = []
+
+
+def read_standard_input(what: str) -> str:
+    """The whole of standard input, for the one argument given as ``-``."""
+    if _stdin_reader:
+        raise UsageError(f"standard input is already the {_stdin_reader[0]}; give the {what} as a file")
+    _stdin_reader.append(what)
+    return sys.stdin.read()
+
+
+def _json_document(text: str, source: str):
+    try:
+        return json.loads(text)
+    except json.JSONDecodeError as error:
+        raise UsageError(f"{source} is not valid JSON ({error.msg} at line {error.lineno})") from None
+
+
+def plant_from_text(text: str, source: str) -> core.Plant:
+    """A plant from plant-file text: TOML, a JSON plant (the same keys as the TOML) or a design file."""
+    if not text.lstrip().startswith("{"):
+        return core.parse_plant_text(text, source)
+    data = _json_document(text, source)
+    if not isinstance(data, dict):
+        raise UsageError(f"{source} must be a JSON object with the keys of a plant file")
+    from .design_file import DESIGN_FORMAT, design_from_json
+    from .export import GAIN_EXPORT_FORMAT
+
+    if data.get("format") == DESIGN_FORMAT:
+        design = design_from_json(text, source)
+        return design.plant.with_changes(specs=design.effective_specs)  # gate on the design's own specs
+    if data.get("format") == GAIN_EXPORT_FORMAT:
+        raise UsageError(f"{source} is an exported gain file, not a plant; give it with --gain")
+    return core.plant_from_mapping(data, source)
+
+
 def resolve_plant(reference: str) -> core.Plant:
-    """Load a plant from a file path or the stem of a bundled plant (e.g. ``cart_pendulum``)."""
+    """Load a plant from ``-`` (standard input), a file (TOML, JSON plant or design file) or a bundled name."""
+    if reference == "-":
+        return plant_from_text(read_standard_input("plant"), "the plant on standard input")
+    if reference.lower().endswith(".json"):
+        path = Path(reference)
+        try:
+            text = path.read_text(encoding="utf-8")
+        except OSError as error:
+            raise UsageError(f"cannot read plant file {reference!r}: {error.strerror or error}") from None
+        return plant_from_text(text, f"plant file {reference!r}")
     from gainboard.sample_plants import resolve_plant_reference
 
     path, _ = resolve_plant_reference(reference)
@@ -61,28 +112,58 @@ def resolve_model(args) -> core.Plant:
     name = getattr(args, "operating_point", None)
     if name is None:
         return resolve_plant(args.plant)
+    if args.plant == "-" or args.plant.lower().endswith(".json"):
+        raise UsageError("--operating-point needs a TOML plant file with [[operating_points]]")
     from gainboard.sample_plants import resolve_plant_reference
 
     path, _ = resolve_plant_reference(args.plant)
     return core.load_plant_family_file(path).model(name).plant
 
 
+def _check_state_order(given, plant: core.Plant, source: str, what: str = "states") -> None:
+    """Refuse a gain whose state (or input) order is not the plant's: K of one plant must not run on another."""
+    expected = list(plant.state_names if what == "states" else plant.input_names)
+    given = [str(name) for name in given]
+    if given != expected:
+        raise UsageError(
+            f"the gain in {source} is for the {what} [{', '.join(given)}] ({len(given)}), but the plant "
+            f"{plant.name!r} has the {what} [{', '.join(expected)}] ({len(expected)}); use a gain designed for this plant"
+        )
+
+
 def parse_gain(text: str, plant: core.Plant) -> np.ndarray:
-    """Read K from a JSON file ``{"K": [[...]]}`` or an inline JSON array of rows."""
-    source = text
-    if not text.lstrip().startswith(("[", "{")):
+    """Read K: inline JSON rows, ``-`` (standard input) or a file: ``{"K": ...}``, an exported gain file or a design file.
+
+    Exported gain files and design files name their state order; it must be the plant's.
+    """
+    source = "standard input" if text == "-" else repr(text)
+    if text == "-":
+        text = read_standard_input("gain")
+    elif not text.lstrip().startswith(("[", "{")):
         path = Path(text)
         try:
             text = path.read_text(encoding="utf-8")
         except OSError as error:
-            raise UsageError(f"cannot read gain file {source!r}: {error.strerror or error}") from None
+            raise UsageError(f"cannot read gain file {source}: {error.strerror or error}") from None
+        source = f"gain file {source}"
     try:
         data = json.loads(text)
     except json.JSONDecodeError as error:
-        raise UsageError(f"the gain {source!r} is not valid JSON ({error.msg}); give [[k11, k12, ...]] or a file with {{\"K\": ...}}") from None
+        raise UsageError(f"the gain {source} is not valid JSON ({error.msg}); give [[k11, k12, ...]] or a file with {{\"K\": ...}}") from None
     if isinstance(data, dict):
+        from .design_file import DESIGN_FORMAT, design_from_json
+
+        if data.get("format") == DESIGN_FORMAT:
+            design = design_from_json(text, source)
+            _check_state_order(design.plant.state_names, plant, source)
+            _check_state_order(design.plant.input_names, plant, source, "inputs")
+            return plant.check_gain(design.gain)
         if "K" not in data:
-            raise UsageError(f"the gain file {source!r} has no key \"K\"; expected {{\"K\": [[...]]}}")
+            raise UsageError(f"the gain {source} has no key \"K\"; expected {{\"K\": [[...]]}}, an exported gain file or a design file")
+        if "state_order" in data:
+            _check_state_order(data["state_order"], plant, source)
+        if "input_order" in data:
+            _check_state_order(data["input_order"], plant, source, "inputs")
         data = data["K"]
     if not isinstance(data, list) or any(isinstance(v, (bool, str)) for v in np.ravel(np.array(data, dtype=object))):
         raise UsageError(f"the gain must be a list of rows of numbers such as [[199, 55, 8]], got {data!r}")
@@ -137,9 +218,9 @@ def _save_design_if_asked(args, plant: core.Plant, gain: np.ndarray, notes: str)
 
 def command_assign(args) -> int:
     plant = resolve_plant(args.plant)
-    result = core.assign_poles(plant, parse_pole_list(args.poles))
+    result = gainboard.assign_poles(plant, parse_pole_list(args.poles))
     _save_design_if_asked(args, plant, result.gain, f"Poles assigned by {result.method}: {args.poles}")
-    cli_output.emit(cli_output.assignment_record(plant, result), args.json, cli_output.assignment_table)
+    cli_output.emit(result.to_dict(), args.json, cli_output.assignment_table)
     return 0
 
 
@@ -157,8 +238,8 @@ def command_evaluate(args) -> int:
         specs=specs,
         include_all_entry_intervals=False,
     )
-    evaluation = core.evaluate_design(plant, gain, options)
-    record = cli_output.evaluation_record(evaluation, specs_given=specs is not None)
+    evaluation = gainboard.evaluate_design(plant, gain, options)
+    record = evaluation.to_dict()
     cli_estimator.add_compensator_to_evaluation(args, plant, evaluation, record)
     cli_output.emit(record, args.json, cli_estimator.evaluation_table)
     spec_report = evaluation.spec_report
@@ -169,23 +250,25 @@ def command_sweep(args) -> int:
     plant = resolve_model(args)
     gain = parse_gain(args.gain, plant)
     row, col = parse_entry(args.entry, plant)
-    intervals = core.entry_stable_intervals(plant, gain, row, col)
+    intervals = gainboard.entry_stable_intervals(plant, gain, row, col)
     low, high = parse_range(args.range) if args.range else core.default_entry_range(plant, gain, row, col)
     locus = core.entry_locus(plant, gain, row, col, low, high)
-    record = cli_output.sweep_record(plant, gain, (row, col), intervals, locus)
+    record = intervals.to_dict(locus)
     cli_output.emit(record, args.json, cli_output.sweep_table)
     return 0
 
 
 def command_export(args) -> int:
-    from .design_file import load_design
+    from .design_file import design_from_json, load_design, write_text_atomically
     from .export import export_design
 
-    text = export_design(load_design(args.design), args.format, sample_time=args.sample_time,
-                         sampled_form=args.sampled_form)
-    if args.output:
-        from .design_file import write_text_atomically
-
+    if args.design == "-":
+        design = design_from_json(read_standard_input("design"), "the design on standard input")
+    else:
+        design = load_design(args.design)
+    text = export_design(design, args.format, sample_time=args.sample_time, sampled_form=args.sampled_form,
+                         prefix=args.prefix)
+    if args.output and args.output != "-":
         write_text_atomically(Path(args.output), text)
     else:
         sys.stdout.write(text)
@@ -213,9 +296,28 @@ def command_plants(args) -> int:
     return 0
 
 
+def limit_blas_to_one_thread() -> None:
+    """Single-threaded BLAS for the server process, unless the user chose a thread count.
+
+    Plants are small (n ≲ 50): multi-threaded BLAS only adds thread hand-off cost on such
+    matrices (measured: one workbench evaluation 440–775 ms threaded vs 140–250 ms single-threaded
+    on a busy 2-core machine). Only ``gainboard serve`` does this, in its own process, with
+    threadpoolctl (numpy is already loaded here); importing gainboard never does.
+    """
+    if any(variable in os.environ for variable in _BLAS_THREAD_VARIABLES):
+        return
+    from threadpoolctl import threadpool_limits
+
+    threadpool_limits(limits=1, user_api="blas")
+    # Worker processes started by the server inherit the choice before their numpy loads.
+    os.environ.update(dict.fromkeys(_BLAS_THREAD_VARIABLES, "1"))
+
+
 def command_serve(args) -> int:
     from .access import access_settings
     from .server import serve_workbench
+
+    limit_blas_to_one_thread()
 
     # Refuse a server without a login on a non-loopback address, and a broken plant, before starting.
     access_settings(args.address, password_file=args.password_file, token=args.token,
@@ -226,6 +328,19 @@ def command_serve(args) -> int:
                     password_file=args.password_file, token=args.token, cookie_secret_file=args.cookie_secret_file,
                     require_login=args.require_login, allow_websocket_origin=args.allow_websocket_origin or ())
     return 0
+
+
+class _VersionAction(argparse.Action):
+    """``--version``: print the installed version (read from package metadata only when asked)."""
+
+    def __init__(self, option_strings, dest=argparse.SUPPRESS, default=argparse.SUPPRESS, help=None):  # noqa: A002
+        super().__init__(option_strings, dest=dest, default=default, nargs=0, help=help)
+
+    def __call__(self, parser, namespace, values, option_string=None):
+        import gainboard
+
+        print(f"gainboard {gainboard.__version__}")
+        parser.exit()
 
 
 class _OneLineErrorParser(argparse.ArgumentParser):
@@ -242,10 +357,13 @@ def build_parser() -> argparse.ArgumentParser:
         description="Design state-feedback gains K (u = -Kx) of linear plants. "
         "Designs from linear models must be validated on the real system with safe limits.",
     )
+    parser.add_argument("--version", action=_VersionAction, help="print the installed version and exit")
     commands = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
 
-    plant_help = "plant file (TOML) or the name of a bundled plant (see `gainboard plants`)"
-    gain_help = 'K as an inline JSON array of rows such as "[[199, 55, 8]]", or a JSON file {"K": [[...]]}'
+    plant_help = ("plant file (TOML, or JSON with the same keys), a design file, - for standard input, "
+                  "or the name of a bundled plant (see `gainboard plants`)")
+    gain_help = ('K as an inline JSON array of rows such as "[[199, 55, 8]]", or a JSON file: {"K": [[...]]}, '
+                 "an exported gain file or a design file (their state order must be the plant's); - for standard input")
     point_help = "use this operating point's model of the plant file instead of the nominal one"
 
     assign = commands.add_parser("assign", help="compute K that places the closed-loop poles at targets")
@@ -280,10 +398,12 @@ def build_parser() -> argparse.ArgumentParser:
     add_robustness_parser(commands, plant_help, gain_help)
 
     export = commands.add_parser("export", help="write K from a design file where it is used (firmware, scripts, reviews)")
-    export.add_argument("design", help="design file (JSON), saved by the workbench or `assign --save`")
+    export.add_argument("design", help="design file (JSON), saved by the workbench or `assign --save`; - for standard input")
     export.add_argument("--format", required=True, choices=("json", "csv", "c", "python", "html"),
                         help="json, csv, c (a C header), python (a snippet) or html (a standalone design report)")
-    export.add_argument("-o", "--output", help="write to this file instead of standard output")
+    export.add_argument("-o", "--output", help="write to this file (- or omitted: standard output)")
+    export.add_argument("--prefix", metavar="NAME",
+                        help="identifier prefix of the C names and of the Python function (default for C: from the plant name)")
     export.add_argument("--sample-time", type=float, metavar="T",
                         help="controller period in seconds for a continuous design with an estimator "
                              "(the compensator is discretised and the file says how)")
@@ -319,11 +439,12 @@ def build_parser() -> argparse.ArgumentParser:
 def main(argv: list[str] | None = None) -> int:
     """Entry point of the ``gainboard`` console script."""
     argv = _join_negative_values(list(sys.argv[1:] if argv is None else argv))
+    _stdin_reader.clear()
     args = build_parser().parse_args(argv)
     try:
         return args.handler(args)
     except (UsageError, core.GainboardError) as error:
-        print(f"gainboard {args.command}: {error}", file=sys.stderr)
+        print(cli_output.printable(f"gainboard {args.command}: {error}"), file=sys.stderr)  # names from files
         return 2
     except KeyboardInterrupt:
         return 130

@@ -25,6 +25,9 @@ from .theme import SAFETY_CAUTION
 
 #: Options of this module whose value may start with '-' (see cli._join_negative_values).
 VALUE_OPTIONS = ("--estimator-gain", "--process-noise", "--measurement-noise", "--initial-estimate")
+#: ``core.ESTIMATOR_FORMS``, spelled out so that building the parser (``gainboard --help``) does not load
+#: the estimator modules and scipy; tests/test_startup.py checks that the two stay equal.
+ESTIMATOR_FORM_CHOICES = ("full-order", "prediction", "current", "reduced-order")
 
 
 class EstimatorUsageError(core.GainboardError):
@@ -164,7 +167,7 @@ def add_estimator_command(commands, plant_help: str, gain_help: str) -> None:
     estimator.add_argument("--measurement-noise", metavar="V",
                            help="measurement noise V as JSON: p×p rows or p variances (default: the plant's [noise], "
                                 "else unit intensity)")
-    estimator.add_argument("--form", choices=core.ESTIMATOR_FORMS,
+    estimator.add_argument("--form", choices=ESTIMATOR_FORM_CHOICES,
                            help="full-order (continuous, default), prediction (sampled, default), current (sampled) "
                                 "or reduced-order")
     estimator.add_argument("--gain", help="K, needed with --save: " + gain_help)
@@ -178,7 +181,7 @@ def add_evaluate_options(evaluate) -> None:
     evaluate.add_argument("--estimator-gain", metavar="L",
                           help='estimator gain L as an inline JSON array of rows or a JSON file {"L": [[...]]}: adds '
                                'the observer-based compensator u = -K x̂ to the output')
-    evaluate.add_argument("--estimator-form", choices=core.ESTIMATOR_FORMS, help="the form L belongs to")
+    evaluate.add_argument("--estimator-form", choices=ESTIMATOR_FORM_CHOICES, help="the form L belongs to")
     evaluate.add_argument("--initial-estimate", metavar="X",
                           help="estimate at the start of the initial response, e.g. 0,0,0,0 (default: zero)")
 

@@ -10,6 +10,7 @@ import dataclasses
 import json
 import math
 import sys
+import unicodedata
 
 import numpy as np
 
@@ -43,13 +44,43 @@ def complex_pairs(values) -> list:
     return [json_value(complex(v)) for v in np.ravel(values)]
 
 
+def printable(text: str) -> str:
+    r"""``text`` safe to print on a terminal: control and format characters written as escapes.
+
+    Names, units and notes come from plant and design files, which anyone may write; an
+    ESC (or another C0/C1 control character) could move the cursor, recolour or rewrite
+    earlier lines, and a bidirectional override could show text in another order than it
+    is (the "Trojan Source" trick). Every character of Unicode category Cc (controls) or
+    Cf (format: bidi overrides and isolates, zero-width characters) except newline and tab
+    is written as ``\xNN`` or ``\uNNNN``.
+
+    Examples
+    --------
+    >>> printable("cart\x1b[2J pendulum\u202e")
+    'cart\\x1b[2J pendulum\\u202e'
+    >>> printable("two\nlines")
+    'two\nlines'
+    """
+    def shown(ch: str) -> str:
+        if ch in "\n\t" or unicodedata.category(ch) not in ("Cc", "Cf"):
+            return ch
+        code = ord(ch)
+        return f"\\x{code:02x}" if code < 0x100 else f"\\u{code:04x}" if code < 0x10000 else f"\\U{code:08x}"
+
+    return "".join(shown(ch) for ch in text)
+
+
 def emit(record: dict, as_json: bool, table) -> None:
-    """Print ``record`` as JSON, or as the readable table made by ``table(record)``."""
+    """Print ``record`` as JSON, or as the readable table made by ``table(record)``.
+
+    JSON is written with ``ensure_ascii`` (every control and non-ASCII character as a
+    ``\\u`` escape, the json module's default); a table goes through :func:`printable`.
+    """
     if as_json:
         json.dump(json_value(record), sys.stdout, indent=2, allow_nan=False)
         sys.stdout.write("\n")
     else:
-        sys.stdout.write(table(json_value(record)))
+        sys.stdout.write(printable(table(json_value(record))))
 
 
 def format_number(value, digits: int = 6) -> str:
@@ -121,27 +152,34 @@ def _verdict_words(verdict: str, stable: str, unstable: str) -> str:
 # -- sweep -------------------------------------------------------------------------------------
 
 
-def sweep_record(plant, gain, entry, intervals, locus) -> dict:
+def sweep_record(plant, gain, entry, intervals, locus=None) -> dict:
+    """The record of ``gainboard sweep``; ``intervals`` is a :class:`gainboard.EntryIntervals` (snapped ends).
+
+    ``"entry"`` counts from 1 as in k_ij; ``"locus"`` is there only when a locus is given.
+    """
     row, col = entry
-    return {
+    record = {
         "plant": plant.name,
         "entry": [row + 1, col + 1],
         "entry_label": f"k{row + 1}{col + 1}: {plant.input_names[row]} from {plant.state_names[col]}",
         "current_value": float(gain[row, col]),
         "current_is_stable": intervals.current_is_stable,
         "current_verdict": intervals.current_verdict,
-        "stable_intervals": [[low, high] for low, high in intervals.intervals],
+        "stable_intervals": [[low, high] for low, high in intervals.stable_intervals],
         "crossings": [
-            {"gain": crossing.gain, "point": json_value(complex(crossing.point))} for crossing in intervals.crossings
+            {"gain": value, "point": json_value(complex(crossing.point))}
+            for value, crossing in zip(intervals.crossing_gains, intervals.crossings)
         ],
         "never_stable_reason": intervals.never_stable_reason,
-        "locus": {
+    }
+    if locus is not None:
+        record["locus"] = {
             "gains": locus.gains,
             "poles": [complex_pairs(row_of_poles) for row_of_poles in locus.poles],
             "start_poles": complex_pairs(locus.start_poles),
             "end_poles": complex_pairs(locus.end_poles),
-        },
-    }
+        }
+    return record
 
 
 def sweep_table(record: dict) -> str:

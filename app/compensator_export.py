@@ -136,7 +136,7 @@ def compensator_export(design: Design, sample_time: float | None = None, sampled
 
 
 def export_compensator(design: Design, format: str, sample_time: float | None = None,  # noqa: A002
-                       sampled_form: str = "prediction") -> str:
+                       sampled_form: str = "prediction", prefix: str | None = None) -> str:
     """The compensator of ``design`` as JSON, a C99 header or a Python class.
 
     Parameters
@@ -148,6 +148,8 @@ def export_compensator(design: Design, format: str, sample_time: float | None = 
         Controller period in seconds, required for a continuous design.
     sampled_form : {"prediction", "current"}
         Sampled estimator form for a continuous full-order design.
+    prefix : str, optional
+        Prefix of the C names (checked by the caller); made from the plant name when omitted.
 
     Raises
     ------
@@ -157,7 +159,8 @@ def export_compensator(design: Design, format: str, sample_time: float | None = 
     writers = {"json": _json, "c": _c_header, "python": _python}
     if format not in writers:
         raise DesignFileError(f"the compensator is exported as {', '.join(COMPENSATOR_EXPORT_FORMATS)}, not {format!r}")
-    return writers[format](compensator_export(design, sample_time, sampled_form))
+    export = compensator_export(design, sample_time, sampled_form)
+    return _c_header(export, prefix) if format == "c" else writers[format](export)
 
 
 # -- JSON ----------------------------------------------------------------------------------------
@@ -208,8 +211,8 @@ def _json(export: CompensatorExport) -> str:
 
 
 class _CNames:
-    def __init__(self, plant: core.Plant):
-        prefix = c_identifier(plant.name, "plant")
+    def __init__(self, plant: core.Plant, prefix: str | None = None):
+        prefix = prefix or c_identifier(plant.name, "plant")
         self.lower, self.upper = prefix.lower(), prefix.upper()
         self.n, self.m, self.p = (f"{self.upper}_{what}_COUNT" for what in ("STATE", "INPUT", "OUTPUT"))
         self.k, self.t = f"{self.upper}_ESTIMATOR_STATE_COUNT", f"{self.upper}_REFERENCE_COUNT"
@@ -229,9 +232,9 @@ def _loop(target: str, rows: str, terms: list[tuple], indent: str = "    ") -> l
     return lines
 
 
-def _c_header(export: CompensatorExport) -> str:
+def _c_header(export: CompensatorExport, prefix: str | None = None) -> str:
     plant, sampled, realization = export.plant, export.sampled, export.realization
-    names = _CNames(export.design.plant)
+    names = _CNames(export.design.plant, prefix)
     lo = names.lower
     k = realization.F.shape[0]
     q = 0 if sampled.integral_gain is None else sampled.integral_gain.shape[1]

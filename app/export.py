@@ -34,6 +34,7 @@ __all__ = [
     "export_c_header",
     "export_python",
     "c_identifier",
+    "checked_prefix",
     "CSV_COLUMNS",
 ]
 
@@ -50,7 +51,7 @@ _IDENTIFIER_LENGTH = 28
 
 
 def export_design(design: Design, format: str, *, sample_time: float | None = None,  # noqa: A002 - the command line's own word
-                  sampled_form: str = "prediction") -> str:
+                  sampled_form: str = "prediction", prefix: str | None = None) -> str:
     """The gains of ``design`` as text in one of :data:`EXPORT_FORMATS`.
 
     A design with an estimator exports its observer-based compensator as JSON, C and
@@ -63,6 +64,10 @@ def export_design(design: Design, format: str, *, sample_time: float | None = No
         The design to export.
     format : {"json", "csv", "c", "python", "html"}
         ``"c"`` is a C99 header; ``"html"`` is the standalone design report.
+    prefix : str, optional
+        Identifier prefix of the C names (``PREFIX_STATE_COUNT``, ``prefix_K``, ...) and of the
+        Python snippet's function (``prefix_feedback``); checked by :func:`checked_prefix`.
+        Without it the C prefix is made from the plant name and the function is ``feedback``.
 
     Returns
     -------
@@ -87,7 +92,7 @@ def export_design(design: Design, format: str, *, sample_time: float | None = No
     if design.estimator is not None and format in ("json", "c", "python"):
         from .compensator_export import export_compensator
 
-        return export_compensator(design, format, sample_time, sampled_form)
+        return export_compensator(design, format, sample_time, sampled_form, prefix=checked_prefix(prefix))
     if sample_time is not None:
         raise DesignFileError("a sample time applies to exporting a compensator; this design has no estimator")
     writers = {"json": export_json, "csv": export_csv, "c": export_c_header, "python": export_python}
@@ -97,7 +102,33 @@ def export_design(design: Design, format: str, *, sample_time: float | None = No
         return design_report_html(design)
     if format not in writers:
         raise DesignFileError(f"unknown export format {format!r}; choose one of {', '.join(EXPORT_FORMATS)}")
+    if format in ("c", "python"):
+        return writers[format](design, prefix=checked_prefix(prefix))
     return writers[format](design)
+
+
+def checked_prefix(prefix: str | None) -> str | None:
+    """``prefix`` if it is a valid C and Python identifier prefix, else a :class:`DesignFileError` saying why.
+
+    Valid: an ASCII letter, then letters, digits or underscores, at most 28 characters (with the
+    suffixes added it stays within the 63 significant characters C99 guarantees), not a Python keyword.
+
+    Examples
+    --------
+    >>> checked_prefix("pitch_loop")
+    'pitch_loop'
+    """
+    import keyword
+
+    if prefix is None:
+        return None
+    if not isinstance(prefix, str) or not re.fullmatch(r"[A-Za-z][A-Za-z0-9_]*", prefix) or keyword.iskeyword(prefix):
+        raise DesignFileError(f"the prefix {prefix!r} is not a valid identifier: use an ASCII letter followed by "
+                              "letters, digits or underscores, such as pitch_loop")
+    if len(prefix) > _IDENTIFIER_LENGTH:
+        raise DesignFileError(f"the prefix {prefix!r} has {len(prefix)} characters; at most {_IDENTIFIER_LENGTH} "
+                              "keep every generated C name within the 63 significant characters of C99")
+    return prefix
 
 
 # -- shared description of a design ----------------------------------------------------------
@@ -258,12 +289,7 @@ def export_json(design: Design) -> str:
 # -- CSV ---------------------------------------------------------------------------------------
 
 #: Column names of the CSV export (one row per matrix entry).
-CSV_COLUMNS = ("matrix", "row", "column", "row_name", "row_unit", "column_name", "column_unit", "value")
-
-
-def _csv_comment_text(text: str) -> str:
-    # A comment line must stay one harmless cell in a spreadsheet: user text loses its separators.
-    return re.sub(r"[,;\t]", " ", text)
+CSV_COLUMNS = ("matrix", "row", "column", "row_name", "row_unit", "column_name", "column_unit", "value", "notes")
 
 
 def _csv_text_cell(text: str) -> str:
@@ -273,19 +299,21 @@ def _csv_text_cell(text: str) -> str:
 
 
 def export_csv(design: Design) -> str:
-    """Gains as CSV: ``#`` comment lines, then one row per matrix entry.
+    """Gains as plain CSV: a header row, then one row per matrix entry (no comment lines).
 
     Columns are :data:`CSV_COLUMNS`; ``matrix`` is ``K``, ``N`` or ``Ki``; ``row`` and
     ``column`` count from 1 (row = input; column = state for K, tracked output for N and Ki);
-    ``value`` reads back to the exact double. Spreadsheets and ``pandas.read_csv(...,
-    comment="#")`` read it directly. A name or unit starting with ``=``, ``+``, ``-`` or ``@``
-    is written with a leading ``'`` so a spreadsheet shows it instead of running it as a formula.
+    ``value`` reads back to the exact double. Any CSV reader (spreadsheets, ``csv.DictReader``,
+    ``pandas.read_csv``) reads it with its default options: the description and the safety
+    caution, which used to be ``#`` comment lines, are the ``notes`` cell of the first row (a
+    quoted multi-line cell; the other rows leave it empty). A name or unit starting with ``=``,
+    ``+``, ``-`` or ``@`` is written with a leading ``'`` so a spreadsheet shows it instead of
+    running it as a formula.
     """
     plant = design.plant
     out = io.StringIO()
-    for line in _description_lines(design, clean=_csv_comment_text):
-        out.write(("# " + _printable(line, escape_backslash=False)).rstrip() + "\n")
     writer = csv.writer(out, lineterminator="\n")
+    notes = "\n".join(_printable(line, escape_backslash=False).rstrip() for line in _description_lines(design))
     writer.writerow(CSV_COLUMNS)
     references = list(zip(_reference_names(design), _reference_units(design)))
     states = list(zip(plant.state_names, plant.state_units))
@@ -300,7 +328,9 @@ def export_csv(design: Design) -> str:
                     _csv_text_cell(input_name), _csv_text_cell(input_unit),
                     _csv_text_cell(column_name), _csv_text_cell(column_unit),
                     repr(float(matrix[i, j])),
+                    _csv_text_cell(notes),
                 ])
+                notes = ""
     return out.getvalue()
 
 
@@ -406,10 +436,10 @@ def _c_string_array(name: str, count_macro: str, values) -> str:
     return f"static const char *const {name}[{count_macro}] = {{ " + ", ".join(_c_string(v) for v in values) + " };"
 
 
-def export_c_header(design: Design) -> str:
+def export_c_header(design: Design, prefix: str | None = None) -> str:
     """Gains as a self-contained C99 header (``static const double`` arrays and one inline function).
 
-    The header defines, with a prefix ``P`` made from the plant name:
+    The header defines, with a prefix ``P`` (``prefix``, else made from the plant name):
     ``P_STATE_COUNT``, ``P_INPUT_COUNT`` (and ``P_REFERENCE_COUNT``, ``P_SAMPLE_TIME_S``
     when they apply), index macros ``P_X_<state>`` and ``P_U_<input>``, the arrays
     ``p_K`` (and ``p_N``, ``p_KI``, ``p_input_low``, ``p_input_high``), the names and units as
@@ -417,7 +447,7 @@ def export_c_header(design: Design) -> str:
     sanitised (:func:`c_identifier`) and comments cannot be closed by hostile text.
     """
     plant = design.plant
-    prefix = c_identifier(plant.name, "plant")
+    prefix = checked_prefix(prefix) or c_identifier(plant.name, "plant")
     lower, upper = prefix.lower(), prefix.upper()
     n_macro, m_macro, t_macro = f"{upper}_STATE_COUNT", f"{upper}_INPUT_COUNT", f"{upper}_REFERENCE_COUNT"
     has_reference = design.prefilter is not None or design.integral_gain is not None
@@ -513,15 +543,16 @@ def _py_matrix(name: str, matrix, row_labels: list[str]) -> str:
     return "\n".join(lines)
 
 
-def export_python(design: Design) -> str:
+def export_python(design: Design, prefix: str | None = None) -> str:
     """Gains as a Python snippet of plain lists (no numpy needed) with a ``feedback`` function.
 
     Module-level names: PLANT_NAME, SAMPLE_TIME (s, or None), STATE_NAMES, STATE_UNITS,
     INPUT_NAMES, INPUT_UNITS, INPUT_LIMITS (list of (low, high) or None), REFERENCE_NAMES,
-    REFERENCE_UNITS, K, N, KI (None when absent) and ``feedback(x, r=None, xi=None)``.
-    Every float reads back to the exact double.
+    REFERENCE_UNITS, K, N, KI (None when absent) and ``feedback(x, r=None, xi=None)``
+    (``PREFIX_feedback`` with a ``prefix``). Every float reads back to the exact double.
     """
     plant = design.plant
+    function = f"{checked_prefix(prefix)}_feedback" if prefix else "feedback"
     input_labels = [_with_unit(name, unit) for name, unit in zip(plant.input_names, plant.input_units)]
     limits = "None"
     if plant.input_limits is not None:
@@ -547,7 +578,7 @@ REFERENCE_UNITS = {_reference_units(design)!r}
 {_py_matrix("KI", design.integral_gain, input_labels)}
 
 
-def feedback(x, r=None, xi=None):
+def {function}(x, r=None, xi=None):
     """{_law(design)} as a list, one entry per input; no saturation, no anti-windup."""
     if len(x) != len(STATE_NAMES):
         raise ValueError(f"x must have {{len(STATE_NAMES)}} entries in the order {{STATE_NAMES}}")

@@ -26,7 +26,10 @@ import logging
 import socket
 import sys
 
-from .access import AccessSettings, WorkbenchLogin, access_settings, is_loopback, share_url
+from .autosave import default_autosave_folder, remove_old_autosaves
+from .access import AccessSettings, WorkbenchLogin, access_settings, is_loopback, name_from_cookie, share_url
+from .request_guard import guard_application
+from .upload_guard import guard_uploads
 
 __all__ = ["serve_workbench", "build_server", "pick_free_port", "workbench_url", "allowed_origins",
            "MAX_MESSAGE_BYTES"]
@@ -139,8 +142,21 @@ def allowed_origins(address: str, port: int, extra=()) -> list[str]:
     return sorted(origins)
 
 
+def server_key(address: str, port: int) -> str:
+    """This server's name among the servers sharing a data folder (its listening address and port).
+
+    Autosaves are kept per server: a restart on the same address and port finds its own.
+
+    Examples
+    --------
+    >>> server_key("127.0.0.1", 5006)
+    '127-0-0-1_5006'
+    """
+    return "".join(ch if ch.isalnum() else "-" for ch in (address or "all"))[:50] + f"_{port}"
+
+
 def build_server(plant_path: str | None, *, address: str = "127.0.0.1", port: int = 0, show: bool = False,
-                 access: AccessSettings | None = None, extra_origins=()):
+                 access: AccessSettings | None = None, extra_origins=(), compress: bool = True):
     """Make (not start) the workbench server.
 
     Returns
@@ -155,20 +171,31 @@ def build_server(plant_path: str | None, *, address: str = "127.0.0.1", port: in
     """
     import panel as pn
     from panel.io.server import get_server
+    from tornado.web import GZipContentEncoding
 
     from .state import plant_from_reference
-    from .workbench import configure_panel, open_session
+    from .workbench import configure_panel
 
     plant, label, text = plant_from_reference(plant_path)  # refuse a broken plant before serving
     configure_panel()
+    # A lost live connection (server stopped, network gone, a message too large) shows this
+    # notice instead of leaving a page that silently stops answering.
+    pn.config.disconnect_notification = ("The connection to the gainboard server was lost; reload the page. "
+                                         "Your last design is in the autosave.")
     send_small_messages_at_once()
     if port == 0:
         port = pick_free_port(address)
+    this_server = server_key(address, port)
+    try:
+        remove_old_autosaves(default_autosave_folder())  # designs untouched for KEEP_DAYS days
+    except OSError as error:
+        log.warning("could not clean up old autosaves: %s", error)
 
     def session():
-        user = pn.state.user if access is not None else None
-        page = open_session(plant, plant_label=label, plant_text=text, arguments=dict(pn.state.session_args or {}),
-                            user=user)
+        # Panel shows any exception escaping this function as a page with the full traceback (server
+        # paths included); open_session_safely never lets one escape.
+        page = open_session_safely(plant, plant_label=label, plant_text=text, access=access, server=this_server)
+        guard_uploads(pn.state.curdoc)  # the upload size limit, checked in the page before sending
         gc.collect()  # see keep_garbage_collection_short: the page's own objects, once, while it loads
         return page
 
@@ -187,8 +214,31 @@ def build_server(plant_path: str | None, *, address: str = "127.0.0.1", port: in
         websocket_max_message_size=MAX_MESSAGE_BYTES,
         **options,
     )
+    guard_application(server._tornado, allowed_origins(address, port, extra_origins))
+    if compress:
+        server._tornado.transforms.insert(0, GZipContentEncoding)  # see COMPRESS_PAGES
     keep_garbage_collection_short()
     return server, server.port
+
+
+def open_session_safely(plant, *, plant_label: str, plant_text: str, access: AccessSettings | None, server: str):
+    """The page of one browser tab; any failure becomes a message on a working page, never a traceback."""
+    import panel as pn
+
+    from .autosave import autosave_owner
+    from .workbench import open_session
+
+    try:
+        arguments = dict(pn.state.session_args or {})
+        user = name_from_cookie(pn.state.user) if access is not None else None  # "<sign-in id>.<name>"
+        return open_session(plant, plant_label=plant_label, plant_text=plant_text, arguments=arguments, user=user,
+                            autosave_key=(server, autosave_owner(user, pn.state.cookies)))
+    except Exception as error:  # the last guard: open_session already falls back to the server's plant
+        log.exception("a page could not be opened")
+        return pn.pane.HTML(
+            "<h2>gainboard could not open this page</h2>"
+            f"<p>{type(error).__name__}. The server log has the details; reload the page without the link "
+            "to start from the server's plant.</p>")
 
 
 def serve_workbench(plant_path: str | None, address: str = "127.0.0.1", port: int = 0, show: bool = True, *,

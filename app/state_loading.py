@@ -6,6 +6,8 @@ through the state's message and leaves the design as it was.
 
 from __future__ import annotations
 
+import logging
+
 import numpy as np
 import param
 
@@ -14,10 +16,54 @@ from gainboard import core
 from .design_file import MAX_DESIGN_FILE_BYTES, Design, DesignFileError, design_from_json
 from .plant_catalogue import plant_from_reference
 
-__all__ = ["LoadingMixin", "MAX_NOTES_CHARACTERS"]
+__all__ = ["LoadingMixin", "MAX_NOTES_CHARACTERS", "MAX_SHARED_STATES", "state_from_snapshot", "check_shared_size"]
+
+log = logging.getLogger(__name__)
 
 #: Longest design notes accepted (a design file must stay far below its size limit).
 MAX_NOTES_CHARACTERS = 100_000
+#: Most states of a plant opened from a snapshot link or an uploaded or typed file in the workbench.
+#: A link costs its sender nothing, but evaluating a 200-state design takes the server's cores for
+#: tens of seconds; 60 states evaluate in well under the 10 s budget here. The command line has no
+#: such limit (its user pays for their own computation).
+MAX_SHARED_STATES = 60
+
+
+def check_shared_size(plant: core.Plant, source: str) -> None:
+    """Refuse a plant from a link or a file opened in the workbench above :data:`MAX_SHARED_STATES` states.
+
+    Raises
+    ------
+    PlantError
+        Saying the limit and that the command line takes larger plants.
+    """
+    if plant.state_count > MAX_SHARED_STATES:
+        raise core.PlantError(
+            f"{source} has {plant.state_count} states; the workbench opens plants of at most "
+            f"{MAX_SHARED_STATES} states from links and files (use the gainboard command line for larger ones)"
+        )
+
+
+def state_from_snapshot(code: str):
+    """(state, problem) for a snapshot link: a DesignState showing it, or (None, a message saying why not).
+
+    Every failure is caught here (any exception type: a snapshot can carry numbers that break
+    the numerics, such as ``A = [[1e308]]``), so a link can never keep a page from opening;
+    the size limit is checked before anything is evaluated.
+    """
+    from .snapshot import design_from_snapshot
+    from .state import DesignState
+
+    try:
+        design = design_from_snapshot(code)
+        check_shared_size(design.plant, "the plant of this link")
+        return DesignState.from_design(design, "snapshot link"), ""
+    except core.GainboardError as error:
+        return None, f"Could not open the snapshot link: {error}"
+    except Exception as error:
+        log.exception("a snapshot link could not be opened")
+        return None, (f"Could not open the snapshot link: its design could not be evaluated "
+                      f"({type(error).__name__}: {error}); the server's plant is shown instead.")
 
 
 def _reference_gains(design: Design):
@@ -94,6 +140,7 @@ class LoadingMixin:
         """Replace the plant by one parsed from TOML text (the editor or an uploaded file)."""
         with self._reporting(f"load {label}"):
             plant = core.parse_plant_text(text, label)
+            check_shared_size(plant, f"the plant in {label}")
             self._replace_plant(plant, label, text, note=f"Loaded {label}.")
             return True
         return False
@@ -186,6 +233,10 @@ class LoadingMixin:
         with self._reporting(f"open {label}"):
             if not isinstance(design, Design):
                 raise DesignFileError(f"{label}: not a design ({type(design).__name__})")
+            check_shared_size(design.plant, f"the plant in {label}")
+            if len(design.notes) > MAX_NOTES_CHARACTERS:
+                raise DesignFileError(f"{label}: the notes have {len(design.notes)} characters; at most "
+                                      f"{MAX_NOTES_CHARACTERS} are kept (shorten them in the file)")
             self._replace_plant(
                 design.plant, label, plant_to_toml(design.plant), gain=design.gain, specs=design.effective_specs,
                 notes=design.notes, history=design.gain_history, created=design.created,

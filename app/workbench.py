@@ -35,7 +35,7 @@ from .robustness_state import SAMPLING_CAUTION, RobustnessState
 from .room_link import RoomLink
 from .rooms import ROOM_PARAMETER
 from .scheduling import LatestOnly
-from .snapshot import SNAPSHOT_PARAMETER, design_from_snapshot, snapshot_url
+from .snapshot import SNAPSHOT_PARAMETER, snapshot_url
 from .state import DesignState
 from .theme import PAGE_CSS, PALETTE, TABLE_CSS, format_gain_text
 from .views.compensator_checks import CompensatorChecks
@@ -386,7 +386,7 @@ class Workbench:
             self.autosave.prune(keep=20)
             with _LIVE_LOCK:
                 live = set(_LIVE_AUTOSAVES)
-            entry = next((e for e in self.autosave.entries() if e.session_id not in live), None)
+            entry = self.autosave.first_offerable(live)  # lazily: stops at the first usable file
         except Exception:  # an unreadable folder must not stop the page
             log.exception("looking for autosaved designs failed")
             return False
@@ -403,7 +403,7 @@ class Workbench:
         return True
 
     def restore_offered(self) -> bool:
-        """Open the offered autosave (it becomes this session's design; the old file is removed)."""
+        """Open the offered autosave (it becomes this session's design, and its file this session's autosave)."""
         entry, self._offered = self._offered, None
         self.page_header.offer_restore("")
         if entry is None:
@@ -412,9 +412,9 @@ class Workbench:
         if not self.state.load_design(entry.design, f"autosaved design ({when})"):
             return False
         try:
-            self.autosave.discard(entry.session_id)
+            self.autosave.claim(entry)  # the file becomes this session's; no other file is touched
         except core.GainboardError as error:
-            log.warning("could not remove the restored autosave: %s", error)
+            log.warning("could not take over the restored autosave: %s", error)
         return True
 
     def discard_offered(self) -> None:
@@ -508,7 +508,7 @@ def _argument(arguments, key: str) -> str:
 
 
 def open_session(plant, *, plant_label: str = "", plant_text: str = "", arguments=None, user: str | None = None,
-                 autosave: bool = True):
+                 autosave: bool = True, autosave_key: tuple[str, str] | None = None):
     """The page of one browser tab, set up from its address.
 
     Parameters
@@ -524,25 +524,34 @@ def open_session(plant, *, plant_label: str = "", plant_text: str = "", argument
         The signed-in name, if the server asks for a login (preferred over ``name``).
     autosave : bool
         Autosave to the user's data folder and offer the newest earlier autosave for restore.
+    autosave_key : (server, person), optional
+        Keep autosaves in that server's and person's own folder (a served page always gives one).
     """
     from .access import clean_display_name
+    from .state_loading import state_from_snapshot
 
     code = _argument(arguments, SNAPSHOT_PARAMETER)
-    state, problem = None, ""
-    if code:
-        try:
-            state = DesignState.from_design(design_from_snapshot(code), "snapshot link")
-        except core.GainboardError as error:
-            problem = f"Could not open the snapshot link: {error}"
+    state, problem = state_from_snapshot(code) if code else (None, "")
+    # Quick at first (poles, locus, responses: no margins, no all-entry intervals) so that the
+    # page is built fast inside the HTTP request; the workbench completes it off the loop on load.
+    served = pn.state.curdoc is not None and pn.state.curdoc.session_context is not None
+    first_detail = Detail.STEP if served else Detail.COMPLETE
     if state is None:
-        # Quick at first (poles, locus, responses: no margins, no all-entry intervals) so that the
-        # page is built fast inside the HTTP request; the workbench completes it off the loop on load.
-        served = pn.state.curdoc is not None and pn.state.curdoc.session_context is not None
-        state = DesignState(plant, plant_label=plant_label, plant_text=plant_text,
-                            first_detail=Detail.STEP if served else Detail.COMPLETE)
+        state = DesignState(plant, plant_label=plant_label, plant_text=plant_text, first_detail=first_detail)
     nickname = clean_display_name(user or "") if user and user != "guest" else ""
     nickname = nickname or clean_display_name(_argument(arguments, NAME_PARAMETER))
-    workbench = Workbench(state, autosave=AutosaveStore() if autosave else None, nickname=nickname)
+    store = None
+    if autosave:
+        store = AutosaveStore.for_person(*autosave_key) if autosave_key else AutosaveStore()
+    try:
+        workbench = Workbench(state, autosave=store, nickname=nickname)
+    except Exception as error:  # a design that breaks a view: open the server's plant and say why
+        if not code:
+            raise
+        log.exception("the design of a snapshot link could not be shown")
+        problem = f"Could not open the snapshot link: showing it failed ({type(error).__name__}: {error})."
+        state = DesignState(plant, plant_label=plant_label, plant_text=plant_text, first_detail=first_detail)
+        workbench = Workbench(state, autosave=store, nickname=nickname)
     if problem:
         state.show_message(problem, "error")
     elif code:

@@ -164,6 +164,43 @@ def cookie_of(headers) -> str:
     return cookie.split(";", 1)[0]
 
 
+def test_the_environment_password_is_stripped_like_the_files_first_line(tmp_path):
+    settings = access_settings("0.0.0.0", environ={PASSWORD_VARIABLE: f"  {PASSWORD} \n"})
+    assert settings.accepts(PASSWORD)
+    (tmp_path / "password").write_text(f"  {PASSWORD} \n")
+    from_file = access_settings("0.0.0.0", password_file=tmp_path / "password", environ={})
+    assert from_file.password == settings.password == PASSWORD
+
+
+def test_sign_in_attempts_are_limited_per_client_and_in_all_and_the_limit_releases():
+    from gainboard.app.access import FREE_FAILURES, FREE_FAILURES_ALL, LONGEST_WAIT, SignInLimiter
+
+    now = [1000.0]
+    limiter = SignInLimiter(clock=lambda: now[0])
+    for _ in range(FREE_FAILURES - 1):
+        limiter.failed("192.0.2.1")
+    assert limiter.wait_for("192.0.2.1") == 0.0  # still free
+    limiter.failed("192.0.2.1")
+    first_wait = limiter.wait_for("192.0.2.1")
+    assert first_wait > 0 and limiter.wait_for("192.0.2.2") == 0.0  # engaged for that client only
+    limiter.failed("192.0.2.1")
+    assert limiter.wait_for("192.0.2.1") == 2 * first_wait  # backoff doubles
+    now[0] += 2 * first_wait
+    assert limiter.wait_for("192.0.2.1") == 0.0  # released
+    for _ in range(20):
+        limiter.failed("192.0.2.1")
+    assert limiter.wait_for("192.0.2.1") == LONGEST_WAIT  # capped
+    limiter.succeeded("192.0.2.1")
+    assert limiter.wait_for("192.0.2.1") == 0.0
+    # Many addresses, a few guesses each: the limit over all clients engages for everyone.
+    spread = SignInLimiter(clock=lambda: now[0])
+    for index in range(FREE_FAILURES_ALL):
+        spread.failed(f"198.51.100.{index}")
+    assert spread.wait_for("203.0.113.9") > 0
+    now[0] += LONGEST_WAIT
+    assert spread.wait_for("203.0.113.9") == 0.0
+
+
 def websocket_handshake(server, cookie="", origin=None, session_token=""):
     """Status of a WebSocket handshake on /ws (101 accepted, RFC 6455 §4.2.2), as the page's script makes it."""
     netloc = urlsplit(server.url).netloc
@@ -239,6 +276,33 @@ def test_the_shared_link_signs_in_with_the_token_and_a_wrong_token_does_not(guar
 def test_a_sign_in_never_redirects_to_another_site(guarded_server):
     status, headers, _ = sign_in(guarded_server, PASSWORD, next_url="//evil.example/")
     assert status == 302 and headers["Location"] == "/"
+
+
+def test_too_many_wrong_secrets_are_answered_429_without_being_checked():
+    from gainboard.app.access import FREE_FAILURES
+
+    running = RunningServer(PLANT, options=["--require-login", "--token"])
+    try:
+        statuses = []
+        for _ in range(FREE_FAILURES):
+            statuses.append(request(running, "GET", "/login?token=guessed")[0])
+        status, headers, page = request(running, "GET", f"/login?{urlsplit(running.sign_in_url).query}")
+        assert statuses == [403] * FREE_FAILURES
+        assert status == 429 and int(headers["Retry-After"]) >= 1 and "Too many wrong attempts" in page
+        assert "Set-Cookie" not in headers  # even the right token waits: it was not checked
+    finally:
+        running.stop()
+
+
+def test_a_signed_out_cookie_is_refused_afterwards(guarded_server):
+    _, headers, _ = sign_in(guarded_server, PASSWORD)
+    cookie = cookie_of(headers)
+    assert request(guarded_server, "GET", "/", headers={"Cookie": cookie})[0] == 200
+    status, headers, _ = request(guarded_server, "GET", "/logout", headers={"Cookie": cookie})
+    assert status == 200
+    status, headers, _ = request(guarded_server, "GET", "/", headers={"Cookie": cookie})  # a kept copy
+    assert status == 302 and "login" in headers["Location"]
+    assert websocket_handshake(guarded_server, cookie) == 403
 
 
 def test_signing_out_clears_the_cookie_and_the_server_logged_no_error(guarded_server):

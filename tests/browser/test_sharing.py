@@ -12,6 +12,7 @@ import json
 import shutil
 import tempfile
 from pathlib import Path
+from urllib.parse import urlsplit
 
 import pytest
 from workbench_server import RunningServer
@@ -113,13 +114,18 @@ def guarded_server(server):
     from gainboard.app.autosave import AutosaveStore
     from gainboard.app.design_file import Design
 
+    from gainboard.app.autosave import autosave_owner
+    from gainboard.app.server import server_key
+
     folder = Path(tempfile.mkdtemp(prefix="gainboard-guarded-"))
     plant = core.load_plant_file(PLANT_FILE)
-    AutosaveStore(folder / "autosave", session_id="yesterday").save(
-        Design(plant=plant, gain=[[150.0, 40.0, 7.0]], notes="left from yesterday"))
     (folder / "password").write_text(PASSWORD + "\n")
     running = RunningServer(str(PLANT_FILE), options=["--require-login", "--password-file", str(folder / "password")],
                             environment={"GAINBOARD_DATA_DIR": str(folder)})
+    # Ana's session of yesterday on this server (autosaves are kept per server and signed-in person).
+    this_server = server_key("127.0.0.1", urlsplit(running.url).port)
+    AutosaveStore.for_person(this_server, autosave_owner("Ana"), folder / "autosave").save(
+        Design(plant=plant, gain=[[150.0, 40.0, 7.0]], notes="left from yesterday"))
     yield running
     running.stop()
     shutil.rmtree(folder, ignore_errors=True)
