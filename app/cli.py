@@ -448,6 +448,13 @@ def main(argv: list[str] | None = None) -> int:
         return 2
     except KeyboardInterrupt:
         return 130
+    except BrokenPipeError:
+        # the reader went away (`gainboard … --json | head`): not an error of ours, and no
+        # traceback. Python's documented recipe (library/signal.html, "Note on SIGPIPE"):
+        # point stdout at devnull so that the flush at exit does not raise again.
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        return 1
 
 
 if __name__ == "__main__":  # pragma: no cover - exercised through the console script

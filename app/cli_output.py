@@ -14,6 +14,8 @@ import unicodedata
 
 import numpy as np
 
+from gainboard import core
+
 from . import number_text
 
 
@@ -139,6 +141,14 @@ def assignment_table(record: dict) -> str:
     return "\n".join(lines) + "\n"
 
 
+def _verdict_words(verdict: str, stable: str, unstable: str) -> str:
+    """The one stability verdict in words; a loop on the boundary is named as such, and not stable."""
+    if verdict == core.ON_THE_BOUNDARY:
+        return "ON THE BOUNDARY (a pole within rounding of the stability boundary: not stable)" \
+            if stable.isupper() else "on the boundary: not stable"
+    return stable if verdict == core.STABLE else unstable
+
+
 # -- sweep -------------------------------------------------------------------------------------
 
 
@@ -154,6 +164,7 @@ def sweep_record(plant, gain, entry, intervals, locus=None) -> dict:
         "entry_label": f"k{row + 1}{col + 1}: {plant.input_names[row]} from {plant.state_names[col]}",
         "current_value": float(gain[row, col]),
         "current_is_stable": intervals.current_is_stable,
+        "current_verdict": intervals.current_verdict,
         "stable_intervals": [[low, high] for low, high in intervals.stable_intervals],
         "crossings": [
             {"gain": value, "point": json_value(complex(crossing.point))}
@@ -175,7 +186,7 @@ def sweep_table(record: dict) -> str:
     lines = [
         f"Plant: {record['plant']}",
         f"Entry {record['entry_label']} (current value {format_number(record['current_value'])}, "
-        + ("stable" if record["current_is_stable"] else "NOT stable")
+        + _verdict_words(record["current_verdict"], "stable", "NOT stable")
         + ")",
     ]
     if record["stable_intervals"]:
@@ -251,10 +262,14 @@ def evaluation_record(evaluation, specs_given: bool) -> dict:
                 "natural_frequency": d.natural_frequency,
                 "time_constant": d.time_constant,
                 "stable": d.stable,
+                "verdict": d.verdict,
             }
             for d in evaluation.closed_loop.descriptions
         ],
         "stable": evaluation.closed_loop.stable,
+        "stability_verdict": evaluation.closed_loop.verdict,
+        "on_boundary": evaluation.closed_loop.on_boundary,
+        "boundary_tolerance": evaluation.closed_loop.boundary_tolerance,
         "stability_margin": evaluation.closed_loop.stability_margin,
         "controllable": evaluation.structure.controllable,
         "uncontrollable_poles": complex_pairs(evaluation.structure.uncontrollable_poles),
@@ -280,7 +295,7 @@ def evaluation_record(evaluation, specs_given: bool) -> dict:
 def evaluation_table(record: dict) -> str:
     lines = [
         f"Plant: {record['plant']}" + (f" (sampled, T = {record['sample_time']} s)" if record["sampled"] else ""),
-        "Closed loop: " + ("STABLE" if record["stable"] else "UNSTABLE")
+        "Closed loop: " + _verdict_words(record["stability_verdict"], "STABLE", "UNSTABLE")
         + ("" if record["controllable"] else "; uncontrollable poles: "
            + ", ".join(format_complex(p) for p in record["uncontrollable_poles"])),
         f"{'pole':>24}  {'damping':>8}  {'ωn (rad/s)':>10}  {'τ (s)':>10}",

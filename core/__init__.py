@@ -23,6 +23,7 @@ _MODULES = (
     "_specs",
     "_plant_file",
     "_structure",
+    "_stability",
     "_closed_loop",
     "_placement",
     "_single_entry",

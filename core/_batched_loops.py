@@ -20,6 +20,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from ._stability import decide_stability_of_stack
+
 __all__: list[str] = []  # private: the public face is gainboard.core's Monte Carlo functions
 
 _EPS = np.finfo(float).eps
@@ -45,18 +47,11 @@ def stability_verdicts(closed_loops: np.ndarray, sample_time: float | None):
     margin : ndarray, shape (N,)
         −max Re s (continuous) or 1 − max |z| (sampled); positive means stable.
     verdict : ndarray of int8, shape (N,)
-        1 stable, −1 unstable, 0 on the boundary: |margin| within rounding of the eigenvalues,
-        n·eps·‖A − BK‖₁ (a pole that close to the boundary cannot be told from one on it).
+        1 stable, −1 unstable, 0 on the boundary: |margin| within 100·n·eps·‖A − BK‖_F, the
+        band of :func:`gainboard.core.decide_stability` (one rule for every verdict).
     """
     poles = np.linalg.eigvals(closed_loops)
-    if sample_time is None:
-        margin = -poles.real.max(axis=1)
-    else:
-        margin = 1.0 - np.abs(poles).max(axis=1)
-    n = closed_loops.shape[-1]
-    norms = np.abs(closed_loops).sum(axis=1).max(axis=1)  # the 1-norm of each matrix
-    tolerance = 4.0 * n * _EPS * np.maximum(norms, 1.0 if sample_time is not None else 0.0)
-    verdict = np.where(margin > tolerance, 1, np.where(margin < -tolerance, -1, 0)).astype(np.int8)
+    margin, verdict = decide_stability_of_stack(poles, closed_loops, sample_time)  # the one rule (core/_stability.py)
     return poles, margin, verdict
 
 

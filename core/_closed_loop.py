@@ -21,6 +21,7 @@ from scipy.linalg import lapack as _lapack
 
 from ._arrays import read_only
 from ._errors import AnalysisError
+from ._stability import STABLE, boundary_tolerance, decide_pole_stability, decide_stability
 
 __all__ = [
     "sort_poles",
@@ -194,7 +195,8 @@ class PoleDescription:
         −1/Re(s) in seconds: the time for this mode to decay by a factor e;
         ``inf`` when the pole does not decay (Re(s) ≥ 0, or |z| ≥ 1).
     stable : bool
-        Re(s) < 0 for continuous plants, |z| < 1 for sampled plants.
+        True when ``verdict`` is ``"stable"``: Re(s) < 0 (continuous) or |z| < 1 (sampled)
+        by more than the loop's rounding band (:func:`gainboard.core.decide_stability`).
     equivalent_continuous : complex
         For sampled plants the equivalent continuous pole s = ln(z)/T (principal
         logarithm, so |Im s| ≤ π/T); for continuous plants the pole itself.
@@ -202,6 +204,9 @@ class PoleDescription:
         s = ln|z|/T + jπ/T, an oscillation at the Nyquist frequency π/T. z = 0
         (deadbeat) has s = −∞: time constant 0, damping ratio 1, natural
         frequency ∞.
+    verdict : str
+        ``"stable"``, ``"on the boundary"`` (within the rounding band of the boundary)
+        or ``"unstable"``.
     """
 
     value: complex
@@ -211,6 +216,7 @@ class PoleDescription:
     time_constant: float
     stable: bool
     equivalent_continuous: complex
+    verdict: str = STABLE
 
 
 def _check_sample_time(sample_time) -> float | None:
@@ -234,23 +240,28 @@ def _describe_continuous(s: complex) -> tuple[float, float, float, float]:
     return damping, natural, abs(s.imag), time_constant
 
 
-def _describe_one(pole: complex, sample_time: float | None) -> PoleDescription:
+def _describe_one(pole: complex, sample_time: float | None, tolerance: float) -> PoleDescription:
+    """Describe one pole; ``tolerance`` is its loop's rounding band around the boundary."""
+    verdict = decide_pole_stability(pole, tolerance, sample_time)
+    stable = verdict == STABLE
     if sample_time is None:
         damping, natural, damped, tau = _describe_continuous(pole)
-        return PoleDescription(pole, damping, natural, damped, tau, bool(pole.real < 0.0), pole)
-    stable = bool(abs(pole) < 1.0)
+        if not stable:
+            tau = math.inf  # a pole within rounding of the axis does not decay
+        return PoleDescription(pole, damping, natural, damped, tau, stable, pole, verdict)
     if pole == 0:
         # deadbeat: the mode is gone after one sample
-        return PoleDescription(pole, 1.0, math.inf, 0.0, 0.0, True, complex(-math.inf, 0.0))
+        return PoleDescription(pole, 1.0, math.inf, 0.0, 0.0, True, complex(-math.inf, 0.0), verdict)
     angle = math.pi if (pole.imag == 0.0 and pole.real < 0.0) else math.atan2(pole.imag, pole.real)
     s = complex(math.log(abs(pole)), angle) / sample_time
     damping, natural, damped, tau = _describe_continuous(s)
     if not stable:
         tau = math.inf  # |z| = 1 may give Re(s) = -tiny by rounding of log; it does not decay
-    return PoleDescription(pole, damping, natural, damped, tau, stable, s)
+    return PoleDescription(pole, damping, natural, damped, tau, stable, s, verdict)
 
 
-def describe_poles(poles, sample_time: float | None = None) -> tuple[PoleDescription, ...]:
+def describe_poles(poles, sample_time: float | None = None,
+                   matrix_norm: float | None = None) -> tuple[PoleDescription, ...]:
     """Describe each pole by damping ratio, natural frequency and time constant.
 
     Parameters
@@ -260,6 +271,9 @@ def describe_poles(poles, sample_time: float | None = None) -> tuple[PoleDescrip
         The order is kept.
     sample_time : float, optional
         Sampling period T in seconds for sampled poles; ``None`` for continuous poles.
+    matrix_norm : float, optional
+        Frobenius norm of the state matrix the poles belong to, which sets the rounding
+        band of the verdicts; by default its lower bound (Σ|p|²)^½ (Schur's inequality).
 
     Returns
     -------
@@ -275,7 +289,9 @@ def describe_poles(poles, sample_time: float | None = None) -> tuple[PoleDescrip
     if not np.all(np.isfinite(values)):
         raise AnalysisError(f"poles must be finite numbers, got {values.tolist()!r}")
     T = _check_sample_time(sample_time)
-    return tuple(_describe_one(complex(p), T) for p in values)
+    norm = float(np.linalg.norm(values)) if matrix_norm is None else float(matrix_norm)
+    tolerance = boundary_tolerance(norm, values.size)
+    return tuple(_describe_one(complex(p), T, tolerance) for p in values)
 
 
 def _unit_columns(vectors: np.ndarray) -> np.ndarray:
@@ -436,7 +452,13 @@ class ClosedLoopReport:
     descriptions : tuple of PoleDescription, length n
         One per pole, same order.
     stable : bool
-        True when ``stability_margin`` > 0.
+        True when ``verdict`` is ``"stable"``.
+    verdict : str
+        ``"stable"``, ``"on the boundary"`` or ``"unstable"``: the one stability decision
+        (:func:`gainboard.core.decide_stability`): stable when ``stability_margin`` exceeds
+        ``boundary_tolerance``, unstable below minus it, otherwise on the boundary.
+    boundary_tolerance : float
+        100 · n · eps · ‖M‖_F, the band around the boundary that rounding cannot resolve.
     stability_margin : float
         Continuous: −max Re(s) (1/s); sampled: 1 − max|z|. Positive means stable;
         the larger, the further the slowest pole is from the stability boundary.
@@ -476,6 +498,13 @@ class ClosedLoopReport:
     pole_condition_numbers: np.ndarray
     pole_error_estimates: np.ndarray
     sample_time: float | None
+    verdict: str = STABLE
+    boundary_tolerance: float = 0.0
+
+    @property
+    def on_boundary(self) -> bool:
+        """True when a pole lies within rounding of the stability boundary (not stable)."""
+        return self.verdict == "on the boundary"
 
 
 def analyze_state_matrix(matrix, sample_time: float | None = None) -> ClosedLoopReport:
@@ -513,23 +542,22 @@ def analyze_state_matrix(matrix, sample_time: float | None = None) -> ClosedLoop
 def _report_from_eigensystem(system: _Eigensystem, sample_time: float | None) -> ClosedLoopReport:
     """The report of :func:`analyze_state_matrix` from an eigendecomposition (sample time checked)."""
     poles, order = _sorted_with_order(system.eigenvalues)
-    descriptions = tuple(_describe_one(complex(p), sample_time) for p in poles)
-    if sample_time is None:
-        margin = float(-np.max(poles.real))
-    else:
-        margin = float(1.0 - np.max(np.abs(poles)))
+    decision = decide_stability(poles, float(np.linalg.norm(system.matrix)), poles.size, sample_time)
+    descriptions = tuple(_describe_one(complex(p), sample_time, decision.tolerance) for p in poles)
     taus = [d.time_constant for d in descriptions]
     return ClosedLoopReport(
         poles=read_only(poles),
         descriptions=descriptions,
-        stable=bool(margin > 0.0),
-        stability_margin=margin,
+        stable=decision.stable,
+        stability_margin=decision.margin,
         slowest_time_constant=float(max(taus)),
         fastest_time_constant=float(min(taus)),
         eigenvector_condition=_eigenvector_condition(system.right),
         pole_condition_numbers=read_only(system.condition_numbers[order]),
         pole_error_estimates=read_only(system.error_estimates[order]),
         sample_time=sample_time,
+        verdict=decision.verdict,
+        boundary_tolerance=decision.tolerance,
     )
 
 

@@ -24,6 +24,7 @@ from ._closed_loop import (
 )
 from ._errors import GainboardError, GainError
 from ._margins import loop_margins
+from ._number_range import check_analysable
 from ._plant import Plant
 from ._responses import ResponseSet, simulate_responses
 from ._single_entry import _all_entry_intervals, _checked_entry_views, _sensitivity_from_eigensystem
@@ -219,6 +220,7 @@ def evaluate_design(plant: Plant, gain, options: EvaluationOptions | None = None
     """
     options = options or EvaluationOptions()
     K = plant.check_gain(gain)
+    check_analysable(plant, K)
     specs = options.specs if options.specs is not None else plant.specs
     messages: list[str] = []
 
@@ -243,7 +245,8 @@ def evaluate_design(plant: Plant, gain, options: EvaluationOptions | None = None
         plant, K, initial_state=options.initial_state, horizon=options.horizon, settling_band=band
     )
     if responses.diverging:
-        messages.append(f"The closed loop is unstable: {responses.diverging_reason}")
+        reason = responses.diverging_reason  # it names the instability itself ("the closed loop is unstable: …")
+        messages.append(reason[:1].upper() + reason[1:])
     if responses.step is None and responses.step_unavailable_reason:
         messages.append(f"No reference step: {responses.step_unavailable_reason}")
 
@@ -256,7 +259,8 @@ def evaluate_design(plant: Plant, gain, options: EvaluationOptions | None = None
 
     spec_report = region = None
     if specs is not None:
-        spec_report = check_specs(specs, closed_loop.poles, responses, margins, plant.sample_time)
+        spec_report = check_specs(specs, closed_loop.poles, responses, margins, plant.sample_time,
+                                  closed_loop.boundary_tolerance)
         region = pole_region(specs, plant.sample_time)
 
     return DesignEvaluation(

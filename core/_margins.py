@@ -39,6 +39,7 @@ from ._errors import AnalysisError
 from ._frequency_sweep import sweep_response
 from ._plant import Plant
 from ._single_entry import gain_factor_intervals
+from ._stability import decide_stability
 
 __all__ = ["SingleLoopMargins", "LoopMargins", "loop_margins", "frequency_response"]
 
@@ -374,12 +375,7 @@ def _wrap_degrees(angle: float) -> float:
 
 
 def _is_stable(matrix: np.ndarray, sample_time: float | None) -> bool:
-    poles = np.linalg.eigvals(matrix)
-    n = matrix.shape[0]
-    if sample_time is not None:
-        return bool(np.max(np.abs(poles)) < 1.0 - 1e3 * n * _EPS)
-    scale = max(np.linalg.norm(matrix, 2), np.finfo(float).tiny)
-    return bool(np.max(poles.real) < -1e3 * n * _EPS * scale)
+    return decide_stability(np.linalg.eigvals(matrix), np.linalg.norm(matrix), matrix.shape[0], sample_time).stable
 
 
 def _exact_gain_margins(closed, b, k, sample_time) -> tuple[float, float, list[float]]:

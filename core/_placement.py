@@ -39,6 +39,7 @@ from ._closed_loop import (
     sort_poles,
 )
 from ._errors import PlacementError
+from ._number_range import check_analysable
 from ._plant import Plant
 from ._structure import (
     WEAK_STRUCTURE_MARGIN,
@@ -568,6 +569,7 @@ def assign_poles(plant: Plant, targets, *, method: str = "auto", complete_conjug
         raise PlacementError(f"assign_poles needs a Plant, got {type(plant).__name__}")
     if method not in PLACEMENT_METHODS:
         raise PlacementError(f"unknown placement method {method!r}; choose one of {', '.join(PLACEMENT_METHODS)}")
+    check_analysable(plant, error=PlacementError)
     A, B = plant.A, plant.B
     n, m = plant.state_count, plant.input_count
     requested, notes = _prepare_targets(targets, n, complete_conjugates)
@@ -635,9 +637,15 @@ def assign_poles(plant: Plant, targets, *, method: str = "auto", complete_conjug
             worst = int(np.argmax(counts))
             if counts[worst] > rank:
                 inputs = f"{rank} inputs" if rank == m else f"{rank} independent inputs (B has rank {rank})"
+                # The true limit (PBH): A − BK − λI has rank ≥ n − rank(B), so λ has at most rank(B)
+                # independent eigenvectors (geometric multiplicity); the algebraic multiplicity can
+                # reach n, but only with a Jordan block, which these multi-input methods do not build.
                 raise PlacementError(
                     f"pole {_format_pole(free[worst])} is requested {counts[worst]} times but the plant has only "
-                    f"{inputs}, so at most {rank} closed-loop poles can coincide there; move some copies apart"
+                    f"{inputs}: a pole may repeat up to {n} times, but it then has at most {rank} independent "
+                    f"eigenvectors, so {counts[worst]} copies need a Jordan block, which the multi-input "
+                    "methods do not build (and which would make the pole very sensitive to any error); "
+                    "move some copies apart"
                 )
             _check_input_structure(free, form.block_sizes)
             part_gain, method_name = _place_several_inputs(A_part, B_used, free, notes)

@@ -53,6 +53,7 @@ from ._propagation import (
     propagate_many,
     step_energies,
 )
+from ._stability import boundary_tolerance
 
 __all__ = [
     "Response",
@@ -221,10 +222,14 @@ def _pole_list_text(poles, sampled: bool) -> str:
 
 
 def _stability_tolerance(loop: np.ndarray, sampled: bool) -> float:
-    """Rounding level of the closed-loop eigenvalues (in 1/s, or in |z| when sampled)."""
-    n = loop.shape[0]
-    size = float(np.abs(loop).sum(axis=0).max()) if n else 0.0  # ‖loop‖₁
-    return 100.0 * n * _EPS * (max(size, 1.0) if sampled else size)
+    """Rounding level of the closed-loop eigenvalues (in 1/s, or in |z| when sampled): the one band.
+
+    :func:`gainboard.core.boundary_tolerance` (100 · n · eps · ‖loop‖_F), so that what the
+    responses call diverging or on the boundary is what the pole report calls so.
+    """
+    if loop.shape[0] == 0:
+        return 0.0
+    return boundary_tolerance(float(np.linalg.norm(loop)), loop.shape[0])
 
 
 def _classify_poles(poles, loop, sampled, tolerance=None):
@@ -294,6 +299,13 @@ def _choose_grid(poles, loop, sampled, sample_time, horizon, time_step, toleranc
         if fastest > 0.0:
             step = min(step, 0.1 / fastest)
         step = max(step, length / (AUTOMATIC_POINT_LIMIT - 1))
+        growth_rate = max([value for value in rates.real.tolist() if value > tolerance], default=0.0)
+        if not automatic_horizon and time_step is None and growth_rate * step > 1.0:
+            # an unstable loop grows by more than e per step over this horizon: the first steps
+            # would pass the largest double before the blow-up could be seen. Simulate until it
+            # has blown up (as the automatic horizon does), finely enough to follow it.
+            length = min(length, 2.0 * math.log(BLOW_UP_FACTOR) / growth_rate)
+            step = max(min(length / 400.0, 0.1 / fastest), length / (AUTOMATIC_POINT_LIMIT - 1))
 
     count = int(math.floor(length / step + 1e-9)) + 1
     if automatic_horizon and time_step is None:
@@ -1052,6 +1064,16 @@ def simulate_responses(
     >>> round(result.step.output_metrics[0].overshoot_percent, 2)  # ζ = 0.7: e^{-πζ/√(1-ζ²)}
     4.6
     """
+    # An unstable loop's trajectory may pass the largest double inside the matrix exponential,
+    # the propagation or the energy integrals: that is expected, and handled where the
+    # responses are cut at their blow-up (each Response's ``diverged_at``, and ``diverging``),
+    # so numpy's overflow warnings would only repeat on stderr what the result reports.
+    with np.errstate(over="ignore", invalid="ignore"):
+        return _simulate(plant, K, initial_state, reference, horizon, time_step, settling_band)
+
+
+def _simulate(plant: Plant, K, initial_state, reference, horizon, time_step, settling_band) -> ResponseSet:
+    """The body of :func:`simulate_responses` (numpy's overflow warnings switched off there)."""
     K = plant.check_gain(K)
     n, m, p = plant.state_count, plant.input_count, plant.output_count
     sampled = plant.is_sampled
@@ -1107,6 +1129,9 @@ def simulate_responses(
 
     sample_time = plant.sample_time
     horizon_used, step, count = _choose_grid(poles, loop, sampled, sample_time, horizon, time_step, tolerance)
+    if horizon is not None and horizon_used < (1.0 - 1e-9) * float(horizon) - step:
+        notes.append(f"the loop is unstable: simulated for {horizon_used:.4g} s, until it has blown up, "
+                     f"instead of the {float(horizon):.4g} s asked for")
     ctx = _Context(plant, K, loop, sampled, step, count, stable, no_steady, diverging_reason, float(settling_band))
 
     zeros_m, zeros_n = np.zeros(m), np.zeros(n)

@@ -29,16 +29,20 @@ from __future__ import annotations
 import math
 import numbers
 import threading
+from warnings import catch_warnings, simplefilter
 import weakref
 from collections import OrderedDict
 from dataclasses import dataclass, replace
 
 import numpy as np
+import scipy.linalg
 
 from ._arrays import read_only
 from ._closed_loop import _Eigensystem, _eigensystem
 from ._errors import GainError
+from ._number_range import check_analysable
 from ._plant import Plant
+from ._stability import StabilityDecision, boundary_tolerance, decide_stability
 from ._single_entry_family import (
     BoundaryPoint,
     RankOneFamily,
@@ -96,6 +100,7 @@ def _checked_entry(plant: Plant, K, row, col) -> tuple[np.ndarray, int, int]:
     if not isinstance(plant, Plant):
         raise GainError(f"the plant must be a gainboard Plant, but {type(plant).__name__} was given")
     gain = plant.check_gain(K)
+    check_analysable(plant, gain, GainError)
     row = _check_index(row, plant.input_count, "row", plant.input_names)
     col = _check_index(col, plant.state_count, "column", plant.state_names)
     return gain, row, col
@@ -278,7 +283,7 @@ class StableIntervals:
     current_value : float
         The entry's value in the given K.
     current_is_stable : bool
-        Whether the given K gives a stable loop.
+        Whether the given K gives a stable loop (``current_verdict == "stable"``).
     never_stable_reason : str
         Why no value works (empty when ``intervals`` is not empty).
     pieces : tuple of (float, float, int)
@@ -296,6 +301,10 @@ class StableIntervals:
         Crossing gains closer than this are treated as one.
     warnings : tuple of str
         Conditioning notes (ill-conditioned or touching crossings).
+    current_verdict : str
+        The one stability decision (:func:`gainboard.core.decide_stability`) on the loop with
+        the given K: ``"stable"``, ``"on the boundary"`` or ``"unstable"``. It always agrees
+        with the intervals: stable exactly when the current value lies inside one.
     """
 
     entry: tuple[int, int]
@@ -310,10 +319,79 @@ class StableIntervals:
     sampled: bool
     gain_tolerance: float
     warnings: tuple[str, ...]
+    current_verdict: str
 
     def contains(self, value: float) -> bool:
         """True when ``value`` lies inside one of the (open) stable intervals."""
         return any(low < value < high for low, high in self.intervals)
+
+
+#: A value is "far" when its feedback term outweighs the moving matrix this many times.
+_FAR_RATIO = 1e3
+
+
+def _far_values(family: RankOneFamily, values) -> np.ndarray:
+    """Where the poles are computed from the scaled pencil instead of the matrix (see _far_poles)."""
+    shifts = np.abs(np.asarray(values, dtype=float).reshape(-1) - family.current_value)
+    feedback = shifts * family.direction_weight * family.pole_scale**2
+    return feedback > _FAR_RATIO * max(float(np.linalg.norm(family.moving_matrix)), family.pole_scale)
+
+
+def _far_poles(family: RankOneFamily, value: float) -> tuple[np.ndarray, float]:
+    """Moving poles at a very large change t = v − v0 from a pencil in the scaled variable 1/t.
+
+    M − t·w·bn·cnᵀ has a norm of order |t| there, so its eigenvalues carry errors of
+    eps·|t|·w·‖bn‖‖cn‖ — more than the distance of the slow poles from the boundary on badly
+    scaled entries (published benchmark ROC4). The same poles are the finite eigenvalues of
+
+        [[M, −ρ], [−σᵀ, 1/t]] − s·[[I, 0], [0, 0]],   ρ = √w·bn, σ = √w·cn,
+
+    (the second row says u = t·σᵀx), whose entries stay of the size of M: QZ computes them
+    with errors of eps times that size instead. Returns the poles and their band around the
+    boundary (:func:`gainboard.core.boundary_tolerance` of ‖pencil‖_F, at least that of A0).
+    """
+    t = value - family.current_value
+    o = family.order
+    root = math.sqrt(family.direction_weight)
+    F = np.zeros((o + 1, o + 1))
+    F[:o, :o] = family.moving_matrix
+    F[:o, o] = -root * family.moving_input
+    F[o, :o] = -root * family.moving_output
+    F[o, o] = 1.0 / t
+    E = np.zeros((o + 1, o + 1))
+    E[:o, :o] = np.eye(o)
+    alpha, beta = scipy.linalg.eigvals(F, E, homogeneous_eigvals=True)
+    infinite = int(np.argmin(np.abs(beta)))  # E has rank o: one eigenvalue is infinite
+    keep = np.arange(o + 1) != infinite
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        poles = alpha[keep] / beta[keep]
+    poles = np.where(np.isfinite(poles), poles, complex(math.inf, 0.0))
+    band = boundary_tolerance(float(np.linalg.norm(F)), family.state_count)  # QZ: backward error eps·‖F‖
+    return poles, max(band, boundary_tolerance(family.full_norm, family.state_count))
+
+
+def _closed_loop_norm_bound(family: RankOneFamily, values) -> np.ndarray:
+    """Upper bound on ‖A0 − (v − v0)·b·cᵀ‖_F at each v: ‖A0‖_F + |v − v0|·w·‖bn‖·‖cn‖."""
+    shifts = np.abs(np.asarray(values, dtype=float).reshape(-1) - family.current_value)
+    with np.errstate(over="ignore", invalid="ignore"):
+        return family.full_norm + shifts * family.direction_weight * family.pole_scale**2
+
+
+def _band_at(family: RankOneFamily, values) -> np.ndarray:
+    """The band of :func:`gainboard.core.boundary_tolerance` for the whole closed loop at each v."""
+    return np.asarray(boundary_tolerance(_closed_loop_norm_bound(family, values), family.state_count)).reshape(-1)
+
+
+def _decision_at(family: RankOneFamily, value: float, poles: np.ndarray) -> StabilityDecision:
+    """The one stability decision on the closed loop at ``value`` (poles: all n of them there)."""
+    norm = float(_closed_loop_norm_bound(family, [value])[0])
+    return decide_stability(poles, norm, family.state_count, 1.0 if family.sampled else None)
+
+
+def _current_decision(family: RankOneFamily, value: float | None = None) -> StabilityDecision:
+    """The one stability decision on the loop at ``value`` (default: the current value)."""
+    value = family.current_value if value is None else value
+    return _decision_at(family, value, _poles_and_counts(family, np.array([value]))[0][0])
 
 
 def _poles_and_counts(family: RankOneFamily, values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -336,12 +414,16 @@ def _poles_and_counts_each(families, value_lists) -> list[tuple[np.ndarray, np.n
             by_order.setdefault(family.order, []).append(position)
     for o, members in by_order.items():
         # in blocks of bounded size (memory O(o²) per block, not one stack of every probe)
-        moving, norms = moving_poles_in_blocks([families[p] for p in members], [value_lists[p] for p in members])
-        # margin_tolerance for each matrix at once: 100·o·eps·max(‖M‖_F, eps)
-        tolerances = 100.0 * max(o, 1) * _EPS * np.maximum(norms, _EPS)
+        moving, _ = moving_poles_in_blocks([families[p] for p in members], [value_lists[p] for p in members])
+        # the one rule, with the band of the whole closed loop at each value (not of its moving
+        # part), so that a count of 0 is exactly the verdict "stable" of decide_stability
+        tolerances = np.concatenate([_band_at(families[p], value_lists[p]) for p in members])
         start = 0
         for p in members:
             stop = start + value_lists[p].size
+            for offset in np.flatnonzero(_far_values(families[p], value_lists[p])):
+                # far out the scaled pencil gives the poles, with the band of its own size
+                moving[start + offset], tolerances[start + offset] = _far_poles(families[p], value_lists[p][offset])
             outside = boundary_distance(moving[start:stop], families[p].sampled) >= -tolerances[start:stop, None]
             counts_of[p] += np.count_nonzero(outside, axis=1)
             moving_of[p] = moving[start:stop]
@@ -354,8 +436,9 @@ def _poles_and_counts_each(families, value_lists) -> list[tuple[np.ndarray, np.n
             poles[:, :order] = moving
         poles[:, order:] = family.fixed_poles  # the same row of fixed poles at every value
         if family.fixed_poles.size:
-            fixed_tolerance = margin_tolerance(family.full_norm, family.state_count)
-            counts += int(np.count_nonzero(boundary_distance(family.fixed_poles, family.sampled) >= -fixed_tolerance))
+            fixed_tolerance = _band_at(family, values)
+            counts += np.count_nonzero(boundary_distance(family.fixed_poles[None, :], family.sampled)
+                                       >= -fixed_tolerance[:, None], axis=1)
         results.append((poles, counts))
     return results
 
@@ -376,16 +459,21 @@ def _piece_probes(edges: list[float], reach: float, current: float) -> list[tupl
     inside the piece, which would reveal a crossing that the exact method missed.
     """
     probes = []
+    # besides the middle, probes close to each finite end (relative 1e-4 and 1e-2 of the piece),
+    # so that a crossing computed in the wrong place near an end is still bracketed
     for low, high in zip(edges[:-1], edges[1:]):
         if math.isinf(low) and math.isinf(high):
             probes.append(([current - 10 * reach, current - reach, current, current + reach, current + 10 * reach], 2))
         elif math.isinf(low):
-            probes.append(([high - 10 * reach, high - reach, high - 0.1 * reach], 1))
+            probes.append(([high - 10 * reach, high - reach, high - 0.1 * reach, high - 1e-2 * reach,
+                            high - 1e-4 * reach], 1))
         elif math.isinf(high):
-            probes.append(([low + 0.1 * reach, low + reach, low + 10 * reach], 1))
+            probes.append(([low + 1e-4 * reach, low + 1e-2 * reach, low + 0.1 * reach, low + reach,
+                            low + 10 * reach], 3))
         else:
             width = high - low
-            probes.append(([low + 0.1 * width, low + 0.5 * width, high - 0.1 * width], 1))
+            probes.append(([low + 1e-4 * width, low + 1e-2 * width, low + 0.5 * width, high - 1e-2 * width,
+                            high - 1e-4 * width], 2))
     return probes
 
 
@@ -510,6 +598,11 @@ def _classify_pieces(family: RankOneFamily, exact_points: list[BoundaryPoint], p
         expected = _expected_change(family, exact_points, gain)
         if expected is not None and counts[k + 1] - counts[k] != expected:
             consistent = False
+    # the current value must agree with the piece it lies in (badly scaled entries: the
+    # exact crossings can be off, and the verdict at v0 is the one the user sees)
+    here = _piece_of(gains, v0, family)
+    if here is not None and (counts[here] == 0) != (quick[0] == 0):
+        consistent = False
     if consistent:
         return gains, counts, bool(quick[0] == 0), []
 
@@ -518,6 +611,14 @@ def _classify_pieces(family: RankOneFamily, exact_points: list[BoundaryPoint], p
         reach = _piece_reach(family, gains)
         edges = [-math.inf] + gains + [math.inf]
         probes = _piece_probes(edges, reach, v0)
+        here = _piece_of(gains, v0, family)
+        if here is not None and v0 not in probes[here][0]:
+            # probe the current value too, so that a change between it and the piece's
+            # other probes is located (and the verdict at v0 cannot contradict its piece)
+            piece_values, representative = probes[here]
+            chosen = piece_values[representative]
+            piece_values = sorted(piece_values + [v0])
+            probes[here] = (piece_values, piece_values.index(chosen))
         values = [v0] + [v for piece_values, _ in probes for v in piece_values]
         _, all_counts = _poles_and_counts(family, np.array(values))
         current_is_stable = bool(all_counts[0] == 0)
@@ -535,7 +636,152 @@ def _classify_pieces(family: RankOneFamily, exact_points: list[BoundaryPoint], p
             return gains, counts, current_is_stable, located
         located.extend(missed)
         gains = _merge_gains(family, gains + [p.gain for p in missed])
-    return gains, counts, current_is_stable, located
+    # rounds used up: classify the pieces between the final gains (one count per piece), so
+    # that there is always one count more than there are gains
+    reach = _piece_reach(family, gains)
+    probes = _piece_probes([-math.inf] + gains + [math.inf], reach, v0)
+    _, final_counts = _poles_and_counts(family, np.array([v0] + [values[k] for values, k in probes]))
+    return gains, [int(c) for c in final_counts[1:]], bool(final_counts[0] == 0), located
+
+
+def _without_unconfirmed_edges(family: RankOneFamily, gains: list[float], counts: list[int]):
+    """Drop crossing gains that change nothing: the same count on both sides and at the gain itself.
+
+    A pole on the boundary at the gain would count there (a touch keeps its gain); an edge
+    with the count of its neighbours everywhere is a crossing the exact method put in the
+    wrong place on an ill-conditioned entry (published benchmark BDT1). Returns the kept
+    gains, their pieces' counts and the dropped gains.
+    """
+    suspects = [k for k in range(len(gains)) if counts[k] == counts[k + 1]]
+    if not suspects:
+        return gains, counts, []
+    _, at_gain = _poles_and_counts(family, np.array([gains[k] for k in suspects]))
+    drop = {k for k, count in zip(suspects, at_gain) if int(count) == counts[k]}
+    kept_gains = [g for k, g in enumerate(gains) if k not in drop]
+    kept_counts = [counts[0]] + [counts[k + 1] for k in range(len(gains)) if k not in drop]
+    return kept_gains, kept_counts, [gains[k] for k in sorted(drop)]
+
+
+def _without_rounding_slivers(family: RankOneFamily, gains: list[float], counts: list[int]):
+    """Fold stable pieces narrower than the ends can be known into their unstable neighbours.
+
+    Past the end of an interval on an ill-conditioned entry the computed count can flip a few
+    times within a relative width of order 1e-8 (published benchmark BDT1): those pieces are
+    rounding, not stable gains. A stable piece narrower than 1e-6 of the gains' size (the limit
+    beyond which a crossing is reported as ill-conditioned) and not holding the current value
+    takes the larger count of its neighbours; equal neighbours then merge. Returns the kept
+    gains, their counts and the dropped gains.
+    """
+    counts = list(counts)
+    changed, folding = False, True
+    while folding:  # a chain of slivers is eaten from its unstable side
+        folding = False
+        for k in range(1, len(counts) - 1):
+            low, high = gains[k - 1], gains[k]
+            width_limit = 1e-6 * max(abs(low), abs(high), family.gain_scale)
+            neighbour = max(counts[k - 1], counts[k + 1])
+            if (counts[k] == 0 and neighbour > 0 and high - low < width_limit
+                    and not low <= family.current_value <= high):
+                counts[k] = neighbour
+                changed = folding = True
+    if not changed:
+        return gains, counts, []
+    kept_gains, kept_counts, dropped = [], [counts[0]], []
+    for k, gain in enumerate(gains):
+        if counts[k + 1] == kept_counts[-1] and counts[k + 1] != 0:
+            dropped.append(gain)
+        else:
+            kept_gains.append(gain)
+            kept_counts.append(counts[k + 1])
+    return kept_gains, kept_counts, dropped
+
+
+#: Newton steps on h′ for a touching point (quadratic convergence from a √eps start).
+_TOUCH_NEWTON_STEPS = 8
+
+
+def _refined_touch(family: RankOneFamily, point: BoundaryPoint) -> BoundaryPoint:
+    """A touching point to full precision: Newton's method on the derivative of the crossing condition.
+
+    A boundary pole s(p) = jp (sampled: e^{jp}) is a pole at the real change
+    t = −1/(w·g(s)) of the entry exactly where h(p) = Im g(s(p)) = 0, with
+    g(s) = cnᵀ(sI − M)⁻¹bn. Where a pole touches the boundary without crossing it, two zeros
+    of h meet: h has a double zero, which the crossing search resolves only to about √eps
+    (4.00000005 for an exact 4). The double zero is a simple zero of h′, found by Newton's
+    method on h′ to rounding level; from g′ = −cnᵀR²bn and g″ = 2cnᵀR³bn (R = (sI − M)⁻¹):
+    continuous h′ = Re g′, h″ = −Im g″; sampled h′ = Re(z g′), h″ = −Im(z g′ + z² g″).
+    The refined point is kept only when |h| is no larger there than at the start.
+    """
+    if family.order == 0:
+        return point
+    M, bn, cn, w = family.moving_matrix, family.moving_input, family.moving_output, family.direction_weight
+    identity = np.eye(family.order)
+
+    def derivatives(parameter: float):
+        s = complex(math.cos(parameter), math.sin(parameter)) if family.sampled else complex(0.0, parameter)
+        factor = scipy.linalg.lu_factor(s * identity - M)
+        first = scipy.linalg.lu_solve(factor, bn.astype(complex))
+        second = scipy.linalg.lu_solve(factor, first)
+        third = scipy.linalg.lu_solve(factor, second)
+        g, g1, g2 = cn @ first, -(cn @ second), 2.0 * (cn @ third)
+        if family.sampled:
+            return s, g, (s * g1).real, -(s * g1 + s * s * g2).imag
+        return s, g, g1.real, -g2.imag
+
+    try:
+        with np.errstate(all="ignore"), catch_warnings():
+            simplefilter("ignore")  # a singular step is caught by the checks below
+            parameter = point.parameter
+            s, g, slope, curvature = derivatives(parameter)
+            start_residual = abs(g.imag)
+            for _ in range(_TOUCH_NEWTON_STEPS):
+                if not (math.isfinite(slope) and math.isfinite(curvature)) or curvature == 0.0:
+                    break
+                step = slope / curvature
+                parameter -= step
+                s, g, slope, curvature = derivatives(parameter)
+                if abs(step) <= 4.0 * _EPS * max(abs(parameter), 1.0):
+                    break
+    except (np.linalg.LinAlgError, ValueError):
+        return point
+    if not (np.isfinite(g) and g.real != 0.0 and abs(g.imag) <= max(start_residual, 8.0 * _EPS * abs(g))):
+        return point
+    gain = family.current_value - 1.0 / (w * g.real)
+    if not math.isfinite(gain):
+        return point
+    return replace(point, gain=float(gain), point=complex(s), parameter=float(abs(parameter)), speed=0.0)
+
+
+def _with_refined_touches(family: RankOneFamily, gains: list[float], counts: list[int], points):
+    """Gains and points with every touching edge (equal counts on both sides) refined."""
+    gains, points = list(gains), list(points)
+    for k, gain in enumerate(gains):
+        if counts[k] != counts[k + 1] or counts[k] != 0:
+            continue  # only a touch inside a stable range is an end of two intervals
+        near = [i for i, p in enumerate(points) if abs(p.gain - gain) <= gain_tolerance(family, gain) and p.exact]
+        if len(near) != 1:
+            continue
+        refined = _refined_touch(family, points[near[0]])
+        low = gains[k - 1] if k else -math.inf
+        high = gains[k + 1] if k + 1 < len(gains) else math.inf
+        if low < refined.gain < high:
+            points[near[0]] = refined
+            gains[k] = refined.gain
+    return gains, points
+
+
+def _piece_of(gains: list[float], value: float, family: RankOneFamily | None = None) -> int | None:
+    """Index of the piece (between consecutive crossing gains) holding ``value``; None on a gain.
+
+    With ``family``, a value within :func:`gain_tolerance` of a gain counts as on it.
+    """
+    if family is not None and any(abs(value - gain) <= gain_tolerance(family, gain) for gain in gains):
+        return None
+    edges = [-math.inf] + list(gains) + [math.inf]
+    for k in range(len(edges) - 1):
+        if edges[k] < value < edges[k + 1]:
+            return k
+    return None
 
 
 def _bisect_count_change(family: RankOneFamily, low: float, high: float, low_count: int) -> BoundaryPoint:
@@ -646,7 +892,8 @@ def _intervals_result(family: RankOneFamily, entry, label: str, fixed_reason, ev
                 f"{count} pole(s) stay {where} whatever its value: change another entry or the plant"
             )
         return StableIntervals(entry, intervals, (), v0, current_is_stable, reason,
-                               ((-math.inf, math.inf, count),), fixed, False, sampled, tolerance, ())
+                               ((-math.inf, math.inf, count),), fixed, False, sampled, tolerance, (),
+                               _current_decision(family).verdict)
 
     if everywhere:
         current_is_stable = bool(quick[0] == 0)
@@ -657,17 +904,48 @@ def _intervals_result(family: RankOneFamily, entry, label: str, fixed_reason, ev
             "no value of this entry stabilises the loop: change another entry first"
         )
         return StableIntervals(entry, (), (), v0, current_is_stable, reason, (), fixed, True, sampled,
-                               tolerance, ())
+                               tolerance, (), _current_decision(family).verdict)
 
     points = list(points)
     gains, counts, current_is_stable, located = _classify_pieces(family, points, probe, quick)
-    points = sorted(points + located, key=lambda p: (p.gain, p.parameter))
+    gains, counts, dropped = _without_unconfirmed_edges(family, gains, counts)
+    gains, counts, slivers = _without_rounding_slivers(family, gains, counts)
+    dropped += slivers
+    points = [p for p in points + located if not any(abs(p.gain - g) <= gain_tolerance(family, g) for g in dropped)]
+    points = sorted(points, key=lambda p: (p.gain, p.parameter))
+    gains, points = _with_refined_touches(family, gains, counts, points)
     edges = [-math.inf] + gains + [math.inf]
     pieces = tuple((edges[k], edges[k + 1], int(counts[k])) for k in range(len(counts)))
     intervals = tuple((low, high) for low, high, count in pieces if count == 0)
+    warnings = []
+    decision = _current_decision(family)
+    current_is_stable = decision.stable
+    inside = [(low, high) for low, high in intervals if low < v0 < high]
+    if inside and not decision.stable:
+        # the loop at v0 itself has a pole on the boundary inside a stable piece: a touch that
+        # the crossings missed (or placed a rounding error away); v0 is not a stable value
+        low, high = inside[0]
+        replaced = {inside[0]}
+        near_low, near_high = v0 - low <= tolerance, high - v0 <= tolerance
+        below = next((i for i in intervals if i[1] == low), None) if near_low else None
+        above = next((i for i in intervals if i[0] == high), None) if near_high else None
+        if below:  # a touching end a rounding error below v0: v0 takes its place
+            replaced.add(below)
+            new = [(below[0], v0), (v0, high)]
+        elif above:  # the same, above
+            replaced.add(above)
+            new = [(low, v0), (v0, above[1])]
+        elif near_low:  # a crossing end a rounding error from v0: v0 becomes that end
+            new = [(v0, high)]
+        elif near_high:
+            new = [(low, v0)]
+        else:  # a touch at v0 that the crossings missed
+            new = [(low, v0), (v0, high)]
+        intervals = tuple(sorted([i for i in intervals if i not in replaced] + new))
+        warnings.append(f"at the current value {v0:.9g} of {label} a pole is {decision.verdict} "
+                        "(margin within rounding): that value is not in a stable interval")
 
     crossings = []
-    warnings = []
     for point in points:
         # the piece boundary this crossing belongs to
         k = int(np.argmin([abs(point.gain - g) for g in gains]))
@@ -716,7 +994,7 @@ def _intervals_result(family: RankOneFamily, entry, label: str, fixed_reason, ev
                 f"for every value (fewest between {low:.6g} and {high:.6g}); change another entry first"
             )
     return StableIntervals(entry, intervals, tuple(crossings), v0, current_is_stable, reason, pieces, fixed,
-                           True, sampled, tolerance, tuple(warnings))
+                           True, sampled, tolerance, tuple(warnings), decision.verdict)
 
 
 def entry_stable_intervals(plant: Plant, K, row: int, col: int) -> StableIntervals:
@@ -793,7 +1071,9 @@ def all_entry_stable_intervals(plant: Plant, K) -> dict[tuple[int, int], StableI
     """
     if not isinstance(plant, Plant):
         raise GainError(f"the plant must be a gainboard Plant, but {type(plant).__name__} was given")
-    return _all_entry_intervals(plant, plant.check_gain(K), {})
+    gain = plant.check_gain(K)
+    check_analysable(plant, gain, GainError)
+    return _all_entry_intervals(plant, gain, {})
 
 
 #: Matrix entries held by the families analysed together in :func:`_all_entry_intervals` (2²¹: 16 MiB of floats).
@@ -1330,8 +1610,9 @@ def _intervals_at(record: _EntryRecord, value: float) -> tuple[StableIntervals, 
     eigenvalue call), ready to be added to the locus.
     """
     poles, counts = _poles_and_counts(record.family, np.array([value]))
-    analysis = replace(record.analysis, current_value=value, current_is_stable=bool(counts[0] == 0),
-                       gain_tolerance=gain_tolerance(record.family, value))
+    decision = _decision_at(record.family, value, poles[0])
+    analysis = replace(record.analysis, current_value=value, current_is_stable=decision.stable,
+                       current_verdict=decision.verdict, gain_tolerance=gain_tolerance(record.family, value))
     return analysis, poles[0]
 
 

@@ -37,6 +37,7 @@ from scipy.linalg.lapack import dggev as _ggev
 from scipy.linalg.lapack import dorghr as _orghr
 
 from ._errors import AnalysisError
+from ._stability import boundary_tolerance
 
 __all__: list[str] = []  # private helpers, nothing re-exported
 
@@ -319,12 +320,8 @@ def unstable_count(poles: np.ndarray, sampled: bool, tolerance: float) -> int:
 
 
 def margin_tolerance(norm: float, size: int) -> float:
-    """How close to the boundary a computed pole must be to count as marginal.
-
-    Eigenvalues are computed with an absolute error of about size·eps·‖matrix‖
-    (backward stable QR algorithm, unit condition number); 100× that is the margin.
-    """
-    return 100.0 * max(size, 1) * _EPS * max(norm, _EPS)
+    """How close to the boundary a computed pole must be to count as marginal (the one rule)."""
+    return boundary_tolerance(norm, size)
 
 
 # ---------------------------------------------------------------------------

@@ -23,6 +23,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from . import _stability
 from ._errors import AnalysisError
 from ._metrics import settling_time
 from ._specs import DesignSpecs
@@ -44,6 +45,11 @@ NAN = float("nan")
 #: Relative slack when comparing with a spec or a region boundary, so that a pole
 #: placed exactly on the boundary (up to rounding) counts as meeting it.
 BOUNDARY_SLACK = 1e-9
+
+
+def _pole_note(variable: str, pole: complex, verdict: str) -> str:
+    note = f"pole {variable} = {pole:.4g}"
+    return note + " is on the boundary (within rounding)" if verdict == _stability.ON_THE_BOUNDARY else note
 
 
 @dataclass(frozen=True)
@@ -219,7 +225,8 @@ def _recomputed_settling(response, i, metrics, band, at_samples):
     return settling_time(response.time, values, None, final, band * scale, at_samples=at_samples)
 
 
-def check_specs(specs, closed_loop_poles, responses=None, margins=None, sample_time=None) -> SpecReport:
+def check_specs(specs, closed_loop_poles, responses=None, margins=None, sample_time=None,
+                boundary_tolerance=None) -> SpecReport:
     """Compare a design with its specifications.
 
     Parameters
@@ -238,6 +245,10 @@ def check_specs(specs, closed_loop_poles, responses=None, margins=None, sample_t
         input changed at once. Without margins the margin checks are "not evaluated".
     sample_time : float, optional
         Sample time of a sampled loop (taken from ``responses`` when omitted there).
+    boundary_tolerance : float, optional
+        The loop's rounding band around the stability boundary
+        (``ClosedLoopReport.boundary_tolerance``); by default the band of the smallest
+        matrix norm the poles allow, (Σ|p|²)^½ (Schur's inequality).
 
     Returns
     -------
@@ -245,7 +256,9 @@ def check_specs(specs, closed_loop_poles, responses=None, margins=None, sample_t
 
     Notes
     -----
-    - **stable** (always): every pole has Re s < 0 (|z| < 1 when sampled).
+    - **stable** (always): the one stability decision (:func:`gainboard.core.decide_stability`):
+      every pole has Re s < 0 (|z| < 1 when sampled) by more than the rounding band; a pole
+      within the band is "on the boundary" and fails.
     - **max_settling_time**: the slowest settling time, with ``specs.settling_band``,
       of the tracked outputs in the reference step and of every output that moves
       in the initial-condition response. A response still outside the band at the
@@ -281,18 +294,22 @@ def check_specs(specs, closed_loop_poles, responses=None, margins=None, sample_t
     checks: list[SpecCheck] = []
 
     # stability -----------------------------------------------------------------------------------
+    if boundary_tolerance is None:
+        boundary_tolerance = _stability.boundary_tolerance(float(np.linalg.norm(poles)), poles.size)
     if sampled:
         radii = np.abs(poles)
         worst = int(np.argmax(radii))
+        verdict = _stability.decide_pole_stability(complex(poles[worst]), boundary_tolerance, sample_time)
         checks.append(SpecCheck(
             "stable", "largest pole magnitude |z| (must be below 1 for a stable sampled loop)",
-            1.0, float(radii[worst]), bool(radii[worst] < 1.0), f"pole z = {poles[worst]:.4g}",
+            1.0, float(radii[worst]), verdict == _stability.STABLE, _pole_note("z", poles[worst], verdict),
         ))
     else:
         worst = int(np.argmax(poles.real))
+        verdict = _stability.decide_pole_stability(complex(poles[worst]), boundary_tolerance, None)
         checks.append(SpecCheck(
             "stable", "largest real part of the poles, 1/s (must be below 0 for a stable loop)",
-            0.0, float(poles.real[worst]), bool(poles.real[worst] < 0.0), f"pole s = {poles[worst]:.4g}",
+            0.0, float(poles.real[worst]), verdict == _stability.STABLE, _pole_note("s", poles[worst], verdict),
         ))
 
     # settling time ----------------------------------------------------------------------------------

@@ -239,7 +239,7 @@ class EntryControls(EntryActions):
         badge = ""
         if intervals is not None:
             badge = ('<span class="gb-pass">✓ stable now</span> · ' if intervals.current_is_stable
-                     else '<span class="gb-fail">✗ unstable now</span> · ')
+                     else f'<span class="gb-fail">✗ {intervals.current_verdict} now</span> · ')
         self.strip.object = (
             f'<div>{interval_strip_svg(low, high, value, intervals, self.slider_width)}</div>'
             f'<div class="gb-interval-text">{badge}{text}</div>'

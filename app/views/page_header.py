@@ -78,6 +78,7 @@ class PageHeader:
         """The title line: plant, where it came from (or the live room) and whether the design is stable."""
         plant = evaluation.plant
         status = ['<span class="gb-pass">stable</span>' if evaluation.closed_loop.stable
+                  else '<span class="gb-fail">on the boundary</span>' if evaluation.closed_loop.on_boundary
                   else '<span class="gb-fail">unstable</span>']
         report = evaluation.spec_report
         if report is not None and report.checks:

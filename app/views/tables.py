@@ -27,8 +27,8 @@ def _pole_rows(descriptions, movable, sampled: bool, kind: str) -> str:
             f'<td class="num">{format_number(description.damping_ratio, 3)}</td>',
             f'<td class="num">{format_number(description.natural_frequency, 4)}</td>',
             f'<td class="num">{format_number(description.time_constant, 4)}</td>',
-            '<td>' + ('<span class="gb-pass">stable</span>' if description.stable else '<span class="gb-fail">unstable</span>')
-            + "</td>",
+            '<td>' + ('<span class="gb-pass">stable</span>' if description.stable
+                      else f'<span class="gb-fail">{description.verdict}</span>') + "</td>",
             "<td>" + ("yes" if can_move else '<span class="gb-fixed">no (uncontrollable)</span>') + "</td>",
         ]
         rows.append(
@@ -63,7 +63,7 @@ class PoleTable:
         open_movable = tuple(evaluation.structure.pole_movable)
         summary = (
             '<span class="gb-pass">closed loop stable</span>' if closed.stable
-            else '<span class="gb-fail">closed loop unstable</span>'
+            else f'<span class="gb-fail">closed loop {closed.verdict}</span>'
         )
         margin_word = "largest |z|" if sampled else "slowest decay rate"
         html = [
