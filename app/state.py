@@ -54,7 +54,7 @@ log = logging.getLogger(__name__)
 
 #: The inputs an evaluation describes, with the labels that go with the plant.
 _INPUTS = ("plant", "plant_label", "plant_text", "continuous_origin", "gain", "selected_entry", "specs",
-           "estimator", "editing", "estimator_selected_entry")
+           "estimator", "editing", "estimator_selected_entry", "emulation_sample_time")
 
 
 class DesignState(LoadingMixin, LqrMixin, EstimatorMixin, param.Parameterized):
@@ -88,6 +88,11 @@ class DesignState(LoadingMixin, LqrMixin, EstimatorMixin, param.Parameterized):
     continuous_origin = param.ClassSelector(
         class_=core.Plant, default=None, allow_None=True,
         doc="The continuous plant a sampled plant was made from (ZOH), kept to go back to it.",
+    )
+    emulation_sample_time = param.Number(
+        default=None, allow_None=True, bounds=(0, None), inclusive_bounds=(False, True),
+        doc="Sample time T (s) of the emulation check shown beside a continuous design: its K run through "
+            "a ZOH at T (the design itself is unchanged); None: no check.",
     )
     gain = param.Array(doc="Feedback gain K, inputs × states (u = −Kx), in input units per state unit.")
     selected_entry = param.Tuple(
@@ -179,6 +184,7 @@ class DesignState(LoadingMixin, LqrMixin, EstimatorMixin, param.Parameterized):
             selected_entry=self.selected_entry, specs=self.specs, include_margins=wanted.include_margins,
             include_all_entry_intervals=wanted.include_all_entry_intervals, gesture=wanted.gesture,
             previous_view=previous, reference_poles=tuple(reference),
+            emulation_sample_time=None if self.plant.is_sampled else self.emulation_sample_time,
         )
 
     def _set_inputs(self, detail: Detail = Detail.COMPLETE, **changes) -> None:
@@ -216,6 +222,7 @@ class DesignState(LoadingMixin, LqrMixin, EstimatorMixin, param.Parameterized):
         cache, key = self.evaluation_cache, None
         if cache is not None and refine is None and targets is None:
             key = (id(self.plant), id(self.specs), self.gain.shape, self.gain.tobytes(), self.selected_entry, detail,
+                   self.emulation_sample_time,
                    id(settings), self.editing, self.estimator_selected_entry)
             found = cache.get(key, self.plant, self.specs)
             if found is not None:
@@ -436,6 +443,8 @@ class DesignState(LoadingMixin, LqrMixin, EstimatorMixin, param.Parameterized):
         with self._reporting("undo" if back else "redo"):
             try:
                 changes = {"gain": target.gain, "estimator": target.estimator}
+                if target.place is not None and target.place["plant"] is not self.plant:
+                    changes.update(target.place)  # a step between time domains: the plant goes back too
                 if target.estimator is None and self.editing == "estimator":
                     changes["editing"] = "controller"
                 self._set_inputs(self.refresh.release(), **changes)
@@ -443,6 +452,8 @@ class DesignState(LoadingMixin, LqrMixin, EstimatorMixin, param.Parameterized):
                 self.history.revert_step(back=back)
                 raise
             self._sync_history_depths()
+            if "plant" in changes:
+                self._after_time_domain_change()
             self._commit()
             return True
         return False

@@ -19,6 +19,7 @@ from ._lqr import *  # noqa: F401,F403
 from ._margins import *  # noqa: F401,F403
 from ._integral_action import *  # noqa: F401,F403
 from ._sampling_check import *  # noqa: F401,F403
+from ._emulation import *  # noqa: F401,F403
 from ._view_ranges import *  # noqa: F401,F403
 from ._design_evaluation import *  # noqa: F401,F403
 from ._noise import *  # noqa: F401,F403

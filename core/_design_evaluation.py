@@ -67,6 +67,9 @@ class EvaluationOptions:
         True while a gain or a pole is being dragged: view ranges are kept or only grow.
     reference_poles : tuple of complex
         More poles the pole-map frame must show (a pinned design, an LQR comparison).
+    emulation_sample_time : float, optional
+        For a continuous plant: also evaluate K run by a sampled controller with a ZOH at
+        this period (:func:`evaluate_emulation`, margins when ``include_margins``).
     """
 
     selected_entry: tuple[int, int] | None = (0, 0)
@@ -79,6 +82,7 @@ class EvaluationOptions:
     previous_view: ViewRanges | None = None
     gesture: bool = False
     reference_poles: tuple = ()
+    emulation_sample_time: float | None = None
 
 
 @dataclass(frozen=True, eq=False)
@@ -119,6 +123,8 @@ class DesignEvaluation:
         Warnings for the user (conditioning, divergence, steps that cannot be computed).
     view_ranges : ViewRanges or None
         Slider ranges, the pole-map frame with the spec region, response axes (see :func:`view_ranges`).
+    emulation : EmulationCheck or None
+        K run through a ZOH at ``options.emulation_sample_time`` (None when not asked for).
     """
 
     plant: Plant
@@ -139,6 +145,7 @@ class DesignEvaluation:
     closed_loop_movable: tuple[bool, ...] = field(default=())
     messages: tuple[str, ...] = field(default=())
     view_ranges: ViewRanges | None = None
+    emulation: object | None = None
 
 
 # Results that depend on the plant alone (structure, open-loop poles), kept while the
@@ -254,6 +261,13 @@ def evaluate_design(plant: Plant, gain, options: EvaluationOptions | None = None
         except GainboardError as error:  # margins are advisory; the rest of the evaluation still stands
             messages.append(f"Loop margins not computed: {error}")
 
+    emulation = None
+    if options.emulation_sample_time is not None and not plant.is_sampled:
+        from ._emulation import evaluate_emulation  # it evaluates the sampled loop with evaluate_design
+
+        emulation = evaluate_emulation(plant, K, options.emulation_sample_time,
+                                       include_margins=options.include_margins, specs=specs)
+
     spec_report = region = None
     if specs is not None:
         spec_report = check_specs(specs, closed_loop.poles, responses, margins, plant.sample_time)
@@ -282,6 +296,7 @@ def evaluate_design(plant: Plant, gain, options: EvaluationOptions | None = None
             sensitivity=sensitivity, pole_region=region, responses=responses, reference_poles=options.reference_poles,
             previous=options.previous_view, gesture=options.gesture, entry_intervals=intervals,
         ),
+        emulation=emulation,
     )
 
 
