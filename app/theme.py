@@ -49,6 +49,7 @@ PALETTE = {
     "limit_band": "#efe6d2",
     "interval_stable": "#6fb58a",
     "interval_unstable": "#e3a59c",
+    "sampled_equivalent": "#1d4e89",
 }
 
 #: One colour per output or input trace, cycled when there are more.
@@ -69,6 +70,7 @@ MARKERS = {
     "estimator": {"marker": "diamond", "size": 15, "line_width": 2.0},
     "zero": {"marker": "circle", "size": 11, "line_width": 1.8},
     "fixed_frame": {"marker": "square", "size": 24, "line_width": 1.6},
+    "sampled_equivalent": {"marker": "circle_x", "size": 11, "line_width": 1.4},
 }
 
 #: The caution shown on every screen (and in the page title bar region).

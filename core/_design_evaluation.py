@@ -265,8 +265,10 @@ def evaluate_design(plant: Plant, gain, options: EvaluationOptions | None = None
     if options.emulation_sample_time is not None and not plant.is_sampled:
         from ._emulation import evaluate_emulation  # it evaluates the sampled loop with evaluate_design
 
+        # over the same time as the continuous responses, so that the two can be drawn together
         emulation = evaluate_emulation(plant, K, options.emulation_sample_time,
-                                       include_margins=options.include_margins, specs=specs)
+                                       include_margins=options.include_margins, specs=specs,
+                                       horizon=responses.horizon, initial_state=options.initial_state)
 
     spec_report = region = None
     if specs is not None:

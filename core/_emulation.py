@@ -97,7 +97,7 @@ def check_sample_time_value(sample_time) -> float:
 
 
 def evaluate_emulation(plant: Plant, gain, sample_time: float, *, include_margins: bool = True,
-                       specs=None) -> EmulationCheck:
+                       specs=None, horizon: float | None = None, initial_state=None) -> EmulationCheck:
     """Evaluate the continuous gain ``gain`` run by a sampled controller with a ZOH at ``sample_time``.
 
     Parameters
@@ -112,6 +112,8 @@ def evaluate_emulation(plant: Plant, gain, sample_time: float, *, include_margin
         Also compute the sampled loop's margins at the plant input.
     specs : DesignSpecs, optional
         Specs to check the sampled loop against (default: the plant's).
+    horizon, initial_state : optional
+        Length and start of the sampled loop's responses (to lie over the continuous ones).
 
     Returns
     -------
@@ -140,6 +142,7 @@ def evaluate_emulation(plant: Plant, gain, sample_time: float, *, include_margin
     check = check_sampled_implementation(plant, gain, T)
     sampled_plant = _sampled_plant(plant, T)
     options = EvaluationOptions(selected_entry=None, include_all_entry_intervals=False,
-                                include_margins=include_margins, specs=specs)
+                                include_margins=include_margins, specs=specs, horizon=horizon,
+                                initial_state=initial_state)
     sampled = evaluate_design(sampled_plant, gain, options)
     return EmulationCheck(sample_time=T, sampled_plant=sampled_plant, sampled=sampled, check=check)

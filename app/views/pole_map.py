@@ -91,6 +91,8 @@ class PoleMap:
         self.pinned_source = ColumnDataSource({"x": [], "y": []}, name="pinned_poles")
         self.lqr_source = ColumnDataSource({"x": [], "y": []}, name="lqr_poles")
         self.fixed_source = ColumnDataSource({"x": [], "y": []})
+        #: ln(z)/T of the emulation check's sampled loop, on the s-plane beside the designed poles.
+        self.sampled_equivalent_source = ColumnDataSource({"x": [], "y": []}, name="sampled_equivalent_poles")
         self.closed_source = ColumnDataSource(
             {"x": [], "y": [], "label": [], "zeta": [], "wn": [], "tau": [], "movable": []}, name="closed_loop_poles"
         )
@@ -161,6 +163,8 @@ class PoleMap:
         fig.scatter("x", "y", source=self.lqr_source, color=PALETTE["lqr"], **MARKERS["lqr"])
         fig.scatter("x", "y", source=self.fixed_source, fill_alpha=0, line_color=PALETTE["fixed_frame"],
                     **MARKERS["fixed_frame"])
+        fig.scatter("x", "y", source=self.sampled_equivalent_source, fill_alpha=0,
+                    line_color=PALETTE["sampled_equivalent"], **MARKERS["sampled_equivalent"])
         self.closed_renderer = fig.scatter("x", "y", source=self.closed_source, color=PALETTE["closed_loop"],
                                            **MARKERS["closed_loop"])
         self.closed_renderer.selection_glyph = None
@@ -202,6 +206,8 @@ class PoleMap:
 
         x, y = _xy(evaluation.open_loop.poles)
         update_source(self.open_source, {"x": x, "y": y})
+        x, y = _xy(_sampled_equivalents(evaluation))
+        update_source(self.sampled_equivalent_source, {"x": x, "y": y})
         self._refresh_region(evaluation)
         self._refresh_locus(evaluation)
         self._refresh_arrows(evaluation)
@@ -375,6 +381,9 @@ class PoleMap:
             keys.append((PALETTE["pinned"], "×", "pinned"))
         if self.state.lqr_poles is not None:
             keys.append((PALETTE["lqr"], "×", "LQR"))
+        if evaluation.emulation is not None:
+            keys.append((PALETTE["sampled_equivalent"], "⊗",
+                         f"sampled at T = {format_number(evaluation.emulation.sample_time)} s, as ln(z)/T"))
         if any(not m for m in self.state.closed_loop_movable()):
             keys.append((PALETTE["fixed_frame"], "□", "cannot move"))
         keys.append((PALETTE["spec_region"], "■", "spec region"))
@@ -501,6 +510,15 @@ class PoleMap:
     def _on_pan_end(self, event) -> None:
         if self._drag is not None:
             self._finish(self._pointer_target(event))
+
+
+def _sampled_equivalents(evaluation) -> np.ndarray:
+    """The emulation check's sampled poles as s = ln(z)/T (finite ones; none without a check)."""
+    emulation = evaluation.emulation
+    if emulation is None or evaluation.plant.is_sampled:
+        return np.zeros(0, complex)
+    poles = np.asarray(emulation.check.equivalent_continuous_poles, complex)
+    return poles[np.isfinite(poles)]
 
 
 def _hover_rows(descriptions, movable, prefix: str, can_move: str, cannot_move: str) -> dict:

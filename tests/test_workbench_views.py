@@ -1,0 +1,76 @@
+"""The workbench's views without a browser: the time base (emulation check, z-plane choices) and the pole map.
+
+Reference values: scipy.signal.cont2discrete (ZOH) for the sampled loop; shared/reference-cases.md case 1
+(Ogata, Modern Control Engineering, 5th ed., Example 10-1, from memory) for the plant and K = [199, 55, 8].
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pytest
+import scipy.signal
+
+from gainboard import core
+from gainboard.app.workbench import build_workbench
+from pole_references import REFERENCE_GAIN
+
+DATA = Path(__file__).resolve().parent / "data"
+
+
+@pytest.fixture
+def workbench():
+    plant = core.load_plant_file(DATA / "third_order_reference.toml")
+    bench = build_workbench(plant, plant_label="third_order_reference.toml").workbench
+    bench.state.set_gain(REFERENCE_GAIN)
+    return bench
+
+
+def scipy_sampled_poles(plant, gain, T):
+    """eig(Φ − ΓK), Φ and Γ from scipy.signal.cont2discrete (reference library)."""
+    Ad, Bd, *_ = scipy.signal.cont2discrete((plant.A, plant.B, plant.C, plant.D), T, method="zoh")
+    return np.linalg.eigvals(Ad - Bd @ np.asarray(gain, float))
+
+
+def test_checking_a_sample_time_shows_the_sampled_loop_everywhere_and_keeps_the_design(workbench):
+    state, sampling = workbench.state, workbench.plant_panel.sampling
+    plant = state.plant
+    sampling.sample_time.value = 0.05
+    sampling.check_button.clicks += 1
+    assert state.plant is plant and state.undo_depth == 1
+    emulation = state.evaluation.emulation
+    expected = scipy_sampled_poles(plant, REFERENCE_GAIN, 0.05)
+    shown = np.asarray(emulation.sampled.closed_loop.poles, complex)
+    assert np.max(np.abs(np.sort_complex(shown) - np.sort_complex(expected))) < 1e-12
+    text = sampling.result.object
+    assert "stable" in text and "Largest stable sample time" in text
+    assert text.count('class="gb-sampled-pole"') == 3
+    # the s-plane map shows ln(z)/T of the sampled loop
+    assert len(workbench.pole_map.sampled_equivalent_source.data["x"]) == 3
+    assert "as ln(z)/T" in workbench.pole_map.legend.object
+    # the response plots draw the sampled loop (outputs and held inputs)
+    assert len(workbench.responses.output_sampled.renderers) == 1
+    assert "dot-dashed" in workbench.responses.legend.object
+
+
+def test_continuing_on_the_z_plane_fits_the_map_to_the_unit_circle_and_undo_goes_back(workbench):
+    state, sampling = workbench.state, workbench.plant_panel.sampling
+    plant = state.plant
+    pole_map = workbench.pole_map
+    s_plane_view = (pole_map.figure.x_range.start, pole_map.figure.x_range.end)
+    sampling.sample_time.value = 0.05
+    sampling.check_button.clicks += 1
+    sampling.keep_button.clicks += 1
+    assert state.plant.is_sampled
+    np.testing.assert_array_equal(state.gain, REFERENCE_GAIN)
+    x0, x1 = pole_map.figure.x_range.start, pole_map.figure.x_range.end
+    y0, y1 = pole_map.figure.y_range.start, pole_map.figure.y_range.end
+    # the z-plane frame holds the unit circle and every pole, not the s-plane ranges
+    assert x0 <= -1 and x1 >= 1 and y0 <= -1 and y1 >= 1 and (x0, x1) != s_plane_view
+    assert x1 - x0 < 4
+    assert "already sampled" not in state.message
+    assert "z-plane" in sampling.result.object
+    assert state.undo()
+    assert state.plant is plant
+    assert pole_map.figure.x_range.start == s_plane_view[0] and pole_map.figure.x_range.end == s_plane_view[1]
