@@ -70,6 +70,12 @@ def test_continuing_on_the_z_plane_fits_the_map_to_the_unit_circle_and_undo_goes
     assert x0 <= -1 and x1 >= 1 and y0 <= -1 and y1 >= 1 and (x0, x1) != s_plane_view
     assert x1 - x0 < 4
     assert "already sampled" not in state.message
+    # the legend describes the sampled plant's locus (its own gain range)
+    from gainboard.app.theme import format_number
+
+    locus = state.evaluation.selected_locus
+    assert (f"from {format_number(locus.gains[0])} (light) to {format_number(locus.gains[-1])} (dark)"
+            in pole_map.legend.object)
     assert "z-plane" in sampling.result.object
     assert state.undo()
     assert state.plant is plant

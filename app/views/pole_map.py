@@ -377,8 +377,11 @@ class PoleMap:
         ]
         if self.state.estimator_evaluation is not None:
             keys.insert(1, (PALETTE["estimator"], "◆", "estimator poles" + (" (drag)" if editing_estimator else "")))
-        if self.state.pinned is not None:
-            keys.append((PALETTE["pinned"], "×", "pinned"))
+        pinned = self.state.pinned
+        if pinned is not None:
+            # a pin made on the other time domain is kept, but its poles live on the other plane
+            keys.append((PALETTE["pinned"], "×", "pinned" if pinned.plant is evaluation.plant
+                         else "pinned (on another plant: not drawn here)"))
         if self.state.lqr_poles is not None:
             keys.append((PALETTE["lqr"], "×", "LQR"))
         if evaluation.emulation is not None:

@@ -122,7 +122,7 @@ def emulation_html(evaluation) -> str:
     )
     table = ('<table class="gb-table"><tr><th>#</th><th>z-plane pole</th><th>|z|</th><th>equivalent s = ln(z)/T</th>'
              f"</tr>{rows}</table>")
-    return ('<div class="gb-note">' + "<br>".join(lines) + "</div>" + table
+    return ('<div class="gb-note gb-sampling-verdict">' + "<br>".join(lines) + "</div>" + table
             + '<div class="gb-small">The sampled loop’s responses are drawn over the continuous ones '
               "(Responses tab, dot-dashed).</div>")
 

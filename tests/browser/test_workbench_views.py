@@ -1,0 +1,94 @@
+"""The workbench's time base, pole-map framing, target poles and layout in a real browser (issue 13).
+
+The plant is reference case 1 of shared/reference-cases.md (tests/data/third_order_reference.toml):
+Ogata, *Modern Control Engineering*, 5th ed., Example 10-1 (from memory): K = [199, 55, 8] gives the
+closed-loop poles −2 ± 4j and −10. The sampled loop is checked against scipy.signal.cont2discrete (ZOH).
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import scipy.signal
+
+from gainboard import core
+from pole_references import matched_distance
+
+DATA = Path(__file__).resolve().parents[1] / "data"
+REFERENCE_GAIN = "[[199, 55, 8]]"
+
+
+def reference_plant():
+    return core.load_plant_file(DATA / "third_order_reference.toml")
+
+
+def map_ranges(page) -> tuple[float, float, float, float]:
+    return tuple(page.evaluate(
+        """() => { const f = Bokeh.documents[0].get_model_by_name('pole_map');
+                   return [f.x_range.start, f.x_range.end, f.y_range.start, f.y_range.end]; }"""))
+
+
+def map_source(page, name: str) -> np.ndarray:
+    x, y = page.evaluate(
+        """(name) => { const s = Bokeh.documents[0].get_model_by_name(name);
+                      return [Array.from(s.data.x), Array.from(s.data.y)]; }""",
+        name,
+    )
+    return np.array(x, dtype=float) + 1j * np.array(y, dtype=float)
+
+
+def click_and_wait(workbench, name: str) -> None:
+    before = workbench.revision()
+    workbench.page.get_by_role("button", name=name).click()
+    workbench.wait_for_revision_above(before)
+    workbench.settled_snapshot()
+
+
+def test_sampling_keeps_the_design_shows_the_emulation_check_and_undo_returns(workbench):
+    page = workbench.page
+    plant = reference_plant()
+    workbench.set_gain_text("[[150, 55, 8]]")
+    workbench.set_gain_text(REFERENCE_GAIN)
+    page.get_by_role("button", name="Pin", exact=True).click()
+    workbench.wait_for(lambda: len(map_source(page, "pinned_poles")) == 3, "the pinned ghosts")
+    s_plane = map_ranges(page)
+
+    workbench.open_tab("Plant")
+    page.locator(".gb-sample-time input").fill("0.05")
+    page.locator(".gb-sample-time input").press("Enter")
+    click_and_wait(workbench, "Check K sampled at T")
+    check = page.locator(".gb-sampling-verdict")
+    workbench.wait_for(lambda: "Largest stable sample time" in check.inner_text(), "the emulation check")
+    assert workbench.gain_text() == REFERENCE_GAIN  # the design is unchanged
+    # the sampled loop's z-plane poles, as scipy's ZOH gives them
+    Ad, Bd, *_ = scipy.signal.cont2discrete((plant.A, plant.B, plant.C, plant.D), 0.05, method="zoh")
+    expected = np.linalg.eigvals(Ad - Bd @ np.array([[199.0, 55.0, 8.0]]))
+    assert page.locator(".gb-sampled-pole").count() == 3
+    magnitudes = sorted(float(t) for t in page.locator(".gb-sampled-pole td:nth-child(3)").all_inner_texts())
+    np.testing.assert_allclose(magnitudes, sorted(np.abs(expected)), atol=1e-4)  # 5 digits shown
+    assert len(map_source(page, "sampled_equivalent_poles")) == 3
+    workbench.screenshot("13-emulation-check")
+
+    click_and_wait(workbench, "Continue on the z-plane from the sampled K")
+    settled = workbench.settled_snapshot()
+    np.testing.assert_array_equal(settled["gain"], [[199.0, 55.0, 8.0]])
+    assert matched_distance(settled["poles"], expected) < 1e-9
+    x0, x1, y0, y1 = map_ranges(page)
+    # the z-plane view is fitted to the unit circle and the poles, not kept from the s-plane
+    assert x0 <= -1 and x1 >= 1 and y0 <= -1 and y1 >= 1 and x1 - x0 < 4
+    assert (x0, x1, y0, y1) != s_plane
+    legend = page.locator(".gb-map-legend").inner_text()
+    assert "sampled at T" not in legend  # the s-plane check's key left with the s-plane
+    assert "pinned (on another plant: not drawn here)" in legend
+    workbench.open_tab("Gains")
+    workbench.screenshot("14-continued-on-z-plane")
+
+    click_and_wait(workbench, "↶ Undo")
+    settled = workbench.settled_snapshot()
+    assert matched_distance(settled["poles"], [-2 + 4j, -2 - 4j, -10]) < 1e-9  # back to the continuous design
+    # fitted to the s-plane design again: every pole inside, not the z-plane's unit circle
+    workbench.wait_for(lambda: map_ranges(page)[0] < -10 and map_ranges(page)[3] > 4, "the s-plane view again")
+    assert len(map_source(page, "pinned_poles")) == 3  # the pin survived the round trip
+    click_and_wait(workbench, "↶ Undo")
+    assert workbench.gain_text() == "[[150, 55, 8]]"  # and the continuous history is still there
