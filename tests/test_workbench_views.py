@@ -80,3 +80,37 @@ def test_continuing_on_the_z_plane_fits_the_map_to_the_unit_circle_and_undo_goes
     assert state.undo()
     assert state.plant is plant
     assert pole_map.figure.x_range.start == s_plane_view[0] and pole_map.figure.x_range.end == s_plane_view[1]
+
+
+def parsed_box(design_bar) -> np.ndarray:
+    from gainboard.app.pole_list import parse_pole_list
+
+    return np.array(parse_pole_list(design_bar.targets.value_input))
+
+
+def test_the_target_box_shows_the_current_poles_after_every_change_and_enter_assigns(workbench):
+    from pole_references import matched_distance, numpy_closed_loop_poles
+
+    state, bar = workbench.state, workbench.design_bar
+    # Ogata Example 10-1 (from memory): the box shows −2 ± 4j, −10 for K = [199, 55, 8]
+    assert matched_distance(parsed_box(bar), [-2 + 4j, -2 - 4j, -10]) < 1e-9
+    bar.targets.value_input = "-3+3j, -3-3j, -8"
+    bar.targets.param.trigger("enter_pressed")  # Enter assigns, as the button does
+    assert matched_distance(numpy_closed_loop_poles(state.plant, state.gain), [-3 + 3j, -3 - 3j, -8]) < 1e-8
+    assert matched_distance(parsed_box(bar), [-3 + 3j, -3 - 3j, -8]) < 1e-9
+    # an LQR adoption, then a plant change: the box follows, never an old plant's poles
+    assert state.compute_lqr() and state.adopt_lqr()
+    # (the box shows 6 significant digits: within 1e-5 of the largest pole)
+    poles = numpy_closed_loop_poles(state.plant, state.gain)
+    assert matched_distance(parsed_box(bar), poles) < 1e-5 * np.max(np.abs(poles))
+    assert state.load_plant_reference("tilt_rig_sampled")
+    assert len(parsed_box(bar)) == state.plant.state_count
+    poles = numpy_closed_loop_poles(state.plant, state.gain)
+    assert matched_distance(parsed_box(bar), poles) < 1e-5 * np.max(np.abs(poles))
+    assert bar.targets.placeholder == bar.targets.value_input
+    # what Assign sends is the text on screen: an edit without Enter is what the button sends
+    before = state.gain.copy()
+    bar.targets.value_input = ""
+    bar.assign_button.clicks += 1
+    assert state.message_kind == "error" and "box is empty" in state.message
+    np.testing.assert_array_equal(state.gain, before)

@@ -75,7 +75,7 @@ class SamplingCheckPanel:
             self.sample_time.value = plant.sample_time
         elif evaluation.emulation is not None and self.sample_time.value != evaluation.emulation.sample_time:
             self.sample_time.value = evaluation.emulation.sample_time
-        self.result.object = emulation_html(evaluation)
+        self.result.object = emulation_html(evaluation, self.state.continuous_origin)
 
 
 def _seconds(value) -> float:
@@ -83,13 +83,17 @@ def _seconds(value) -> float:
     return float(value) if value is not None else 0.0
 
 
-def emulation_html(evaluation) -> str:
-    """The emulation check in words and a table (or what to do to get one)."""
+def emulation_html(evaluation, continuous_origin=None) -> str:
+    """The emulation check in words and a table (or what to do to get one).
+
+    ``continuous_origin``: the continuous plant a sampled one was made from here (None: none).
+    """
     plant = evaluation.plant
     if plant.is_sampled:
+        back = (" Undo (or “Back to continuous”) returns to the continuous design." if continuous_origin is not None
+                else " The plant file is sampled itself, so there is no continuous design to go back to.")
         return (f'<div class="gb-note">The design runs on the z-plane, sampled every '
-                f"{format_number(plant.sample_time)} s. Undo (or “Back to continuous”) returns to the continuous "
-                "design.</div>")
+                f"{format_number(plant.sample_time)} s.{back}</div>")
     emulation = evaluation.emulation
     if emulation is None:
         return ('<div class="gb-note">Check what this continuous K does when a computer runs it: sampled every T '

@@ -92,3 +92,44 @@ def test_sampling_keeps_the_design_shows_the_emulation_check_and_undo_returns(wo
     assert len(map_source(page, "pinned_poles")) == 3  # the pin survived the round trip
     click_and_wait(workbench, "↶ Undo")
     assert workbench.gain_text() == "[[150, 55, 8]]"  # and the continuous history is still there
+
+
+def test_the_target_box_shows_what_assign_sends_and_enter_assigns(workbench):
+    from gainboard.app.pole_list import parse_pole_list
+    from pole_references import numpy_closed_loop_poles
+
+    page = workbench.page
+    plant = reference_plant()
+    workbench.set_gain_text(REFERENCE_GAIN)
+    box = page.locator(".gb-targets input")
+    workbench.wait_for(lambda: box.input_value() != "", "the current poles in the target box")
+    # Ogata Example 10-1 (from memory): the box shows the current poles −2 ± 4j, −10
+    assert matched_distance(parse_pole_list(box.input_value()), [-2 + 4j, -2 - 4j, -10]) < 1e-9
+    before = workbench.revision()
+    box.fill("-3+3j, -3-3j, -8")
+    box.press("Enter")
+    workbench.wait_for_revision_above(before)
+    settled = workbench.settled_snapshot()
+    assert matched_distance(numpy_closed_loop_poles(plant, settled["gain"]), [-3 + 3j, -3 - 3j, -8]) < 1e-8
+    workbench.wait_for(lambda: matched_distance(parse_pole_list(box.input_value()), [-3 + 3j, -3 - 3j, -8]) < 1e-9,
+                       "the assigned poles in the box")
+    # another plant: the box shows that plant's poles (4 states, z-plane), not the old ones
+    import tomllib
+
+    from gainboard.sample_plants import bundled_plant_files
+
+    workbench.open_tab("Plant")
+    path = bundled_plant_files()["tilt_rig_sampled"]
+    raw = tomllib.loads(path.read_text(encoding="utf-8"))
+    page.locator(".gb-bundled select").select_option(label=f"{raw['name']} — {raw['summary']}")
+    workbench.wait_for(lambda: "tilt_rig_sampled" in page.locator(".gb-small code").all_inner_texts(),
+                       "the chosen plant's short name under the chooser")
+    before = workbench.revision()
+    page.get_by_role("button", name="Open", exact=True).click()
+    workbench.wait_for_revision_above(before)
+    settled = workbench.settled_snapshot()
+    tilt = core.load_plant_file(path)
+    expected = numpy_closed_loop_poles(tilt, settled["gain"])
+    workbench.wait_for(lambda: len(parse_pole_list(box.input_value())) == tilt.state_count, "the new plant's poles")
+    assert matched_distance(parse_pole_list(box.input_value()), expected) < 1e-5 * np.max(np.abs(expected))
+    workbench.screenshot("15-target-box-after-plant-change")
