@@ -114,3 +114,25 @@ def test_the_target_box_shows_the_current_poles_after_every_change_and_enter_ass
     bar.assign_button.clicks += 1
     assert state.message_kind == "error" and "box is empty" in state.message
     np.testing.assert_array_equal(state.gain, before)
+
+
+def test_adopting_the_lqr_design_gives_the_exact_bryson_lqr_not_one_of_rounded_weights():
+    import scipy.linalg
+
+    from gainboard.app.plant_catalogue import plant_from_reference
+
+    plant, label, text = plant_from_reference("twin_tank_levels")  # Bryson weights 1111.11…, 0.0138704…
+    bench = build_workbench(plant, plant_label=label, plant_text=text).workbench
+    panel, state = bench.lqr_panel, bench.state
+    panel.compute_button.clicks += 1
+    panel.adopt_button.clicks += 1
+    # Bryson's rule (Bryson & Ho, Applied Optimal Control, 1975, from memory): weights 1/(largest value)²,
+    # as the core forms them; the reference K = R⁻¹BᵀP with P from scipy.linalg.solve_continuous_are.
+    Q, R = core.bryson_weights(plant)
+    P = scipy.linalg.solve_continuous_are(plant.A, plant.B, Q, R)
+    expected = np.linalg.solve(R, plant.B.T @ P)
+    np.testing.assert_allclose(state.gain, expected, rtol=1e-12, atol=0)
+    # an edited box is read as typed
+    panel.q_input.value = "1, 1"
+    panel.compute_button.clicks += 1
+    np.testing.assert_array_equal(np.diag(state.lqr_weights[0]), [1.0, 1.0])
