@@ -39,7 +39,16 @@ from bokeh.models import (
 from bokeh.plotting import figure
 
 from ..scheduling import guarded
-from ..theme import LOCUS_RAMP, MARKERS, PALETTE, entry_symbol, estimator_entry_symbol, format_complex, format_number
+from ..theme import (
+    LOCUS_RAMP,
+    MARKERS,
+    PALETTE,
+    entry_symbol,
+    estimator_entry_symbol,
+    format_complex,
+    format_number,
+    pole_time_text,
+)
 from .data_sources import update_source
 from .html_box import HtmlBox
 
@@ -181,7 +190,7 @@ class PoleMap:
         hover = HoverTool(
             renderers=[self.closed_renderer, self.estimator_renderer],
             tooltips=[("pole", "@label"), ("damping ratio", "@zeta"), ("natural frequency", "@wn"),
-                      ("time constant", "@tau"), ("", "@movable")],
+                      ("time constant (unstable: growth time)", "@tau"), ("", "@movable")],
             description="Pole details",
         )
         wheel = WheelZoomTool(description="Zoom with the mouse wheel")
@@ -531,7 +540,7 @@ def _hover_rows(descriptions, movable, prefix: str, can_move: str, cannot_move: 
         rows["label"].append(prefix + format_complex(description.value))
         rows["zeta"].append(format_number(description.damping_ratio, 3))
         rows["wn"].append(format_number(description.natural_frequency, 4) + " rad/s")
-        rows["tau"].append(format_number(description.time_constant, 4) + " s")
+        rows["tau"].append(pole_time_text(description) + " s")
         rows["movable"].append(can_move if moves else cannot_move)
     return rows
 

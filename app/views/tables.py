@@ -8,7 +8,7 @@ import panel as pn
 
 from ..refresh_policy import detail_options
 from ..spec_rows import spec_check_rows
-from ..theme import TABLE_CSS, format_complex, format_number
+from ..theme import TABLE_CSS, format_complex, format_number, pole_time_text
 from .html_box import HtmlBox
 
 __all__ = ["PoleTable", "ChecksTable"]
@@ -26,7 +26,7 @@ def _pole_rows(descriptions, movable, sampled: bool, kind: str) -> str:
         cells += [
             f'<td class="num">{format_number(description.damping_ratio, 3)}</td>',
             f'<td class="num">{format_number(description.natural_frequency, 4)}</td>',
-            f'<td class="num">{format_number(description.time_constant, 4)}</td>',
+            f'<td class="num">{pole_time_text(description)}</td>',
             '<td>' + ('<span class="gb-pass">stable</span>' if description.stable else '<span class="gb-fail">unstable</span>')
             + "</td>",
             "<td>" + ("yes" if can_move else '<span class="gb-fixed">no (uncontrollable)</span>') + "</td>",
@@ -42,7 +42,7 @@ def _pole_table(descriptions, movable, sampled: bool, kind: str) -> str:
     header = "<th>#</th><th>pole" + (" z" if sampled else " s") + "</th>"
     if sampled:
         header += "<th>as s = ln z / T</th>"
-    header += "<th>damping ratio</th><th>natural freq. (rad/s)</th><th>time constant (s)</th><th>stability</th><th>movable</th>"
+    header += "<th>damping ratio</th><th>natural freq. (rad/s)</th><th title='time to decay by a factor e; for an unstable pole the time to grow by e'>time constant / growth time (s)</th><th>stability</th><th>movable</th>"
     return (f'<table class="gb-table gb-poles-{kind}"><tr>{header}</tr>'
             + _pole_rows(descriptions, movable, sampled, kind) + "</table>")
 
