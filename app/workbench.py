@@ -67,10 +67,13 @@ _MAX_ARGUMENT_CHARACTERS = 20_000
 #: Autosave ids of the sessions open in this process: their files are not offered for restore.
 _LIVE_AUTOSAVES: set[str] = set()
 _LIVE_LOCK = threading.Lock()
-#: Height of the scrolling tab contents, so that the page fits a 768-pixel-high screen.
+#: Smallest height of the scrolling tab contents: the page fits a 768-pixel-high screen; a taller
+#: window gives the tabs its extra height (see Workbench._layout).
 TAB_HEIGHT = 590
-#: Height of the K readout and history buttons above the gain entries.
-GAIN_BAR_HEIGHT = 150
+#: Pixels above the tab contents (header, caution, message bar, tab headers), measured at 1440×900.
+HEADER_ALLOWANCE = 150
+#: Height of the K readout, history buttons and "gain entries" heading above the gain entries (measured).
+GAIN_BAR_HEIGHT = 162
 #: An evaluation still running after this many seconds is reported to the user.
 EVALUATION_BUDGET_SECONDS = 10.0
 
@@ -199,14 +202,19 @@ class Workbench:
     def _layout(self):
         label = lambda text: pn.pane.HTML(f'<div class="gb-heading">{text}</div>',  # noqa: E731
                                           stylesheets=[TABLE_CSS], margin=(2, 5, 0, 5))
-        # Each tab scrolls on its own, so long content never pushes the page past the screen.
-        scrolling = lambda content, width, height=TAB_HEIGHT: pn.Column(  # noqa: E731
-            content, height=height, width=width, scroll=True, margin=0)
+        # Each tab scrolls on its own, so long content never pushes the page past the screen: its
+        # height follows the window (the header above takes HEADER_ALLOWANCE pixels), never below
+        # the 768-pixel laptop layout's.
+        def scrolling(content, width, below_header: int = 0):
+            return pn.Column(content, width=width, scroll=True, margin=0,
+                             styles={"height": f"max({TAB_HEIGHT - below_header}px, "
+                                               f"calc(100vh - {HEADER_ALLOWANCE + below_header}px))"})
+
         # K, undo/redo and pinning stay in view while the list of entries scrolls.
         gains = pn.Column(
             self.design_bar.panel,
             label("gain entries"),
-            scrolling(self.gains.panel, 370, TAB_HEIGHT - GAIN_BAR_HEIGHT),
+            scrolling(self.gains.panel, 370, GAIN_BAR_HEIGHT),
             margin=0, width=370,
         )
         left = pn.Tabs(
@@ -237,8 +245,10 @@ class Workbench:
             TabKeys(width=0, height=0, margin=0),
             nudges,
             *self.page_header.panels,
-            pn.Row(left, centre, right, margin=0),
-            margin=0,
+            # a window narrower than the three columns (≤ 800 px, say) stacks them instead of shrinking them
+            pn.FlexBox(left, centre, right, flex_wrap="wrap", align_items="flex-start", margin=0,
+                       css_classes=["gb-columns"], sizing_mode="stretch_width"),
+            margin=0, sizing_mode="stretch_width",
             styles={"background": PALETTE["paper"]},
         )
 

@@ -133,3 +133,59 @@ def test_the_target_box_shows_what_assign_sends_and_enter_assigns(workbench):
     workbench.wait_for(lambda: len(parse_pole_list(box.input_value())) == tilt.state_count, "the new plant's poles")
     assert matched_distance(parse_pole_list(box.input_value()), expected) < 1e-5 * np.max(np.abs(expected))
     workbench.screenshot("15-target-box-after-plant-change")
+
+
+#: Page-pixel boxes of the three columns (by what each starts with: the Gains tab, the edit-mode bar, the
+#: Responses tab), the visible scrolling tab bodies (their height follows the window) and the page's scroll size.
+_LAYOUT_SCRIPT = """() => {
+    const all = [];
+    const visit = (root) => root.querySelectorAll('*').forEach(e => { all.push(e); if (e.shadowRoot) visit(e.shadowRoot); });
+    visit(document);
+    const box = e => { const b = e.getBoundingClientRect(); return [b.left, b.top, b.right, b.bottom]; };
+    const tab = text => all.find(e => e.classList && e.classList.contains('bk-tab') && e.textContent.trim() === text);
+    const bodies = all.filter(e => e.style && String(e.style.height).includes('100vh') && e.getBoundingClientRect().width > 0);
+    return {
+        starts: [box(tab('Gains')), box(all.find(e => e.classList && e.classList.contains('gb-edit-mode')) || tab('Gains')),
+                 box(tab('Responses'))],
+        bodies: bodies.map(box),
+        scroll: [document.documentElement.scrollWidth, document.documentElement.scrollHeight],
+    };
+}"""
+
+
+def open_at(browser, server, width: int, height: int):
+    from conftest import WorkbenchPage
+
+    context = browser.new_context(viewport={"width": width, "height": height})
+    tab = WorkbenchPage(context.new_page(), server)
+    tab.open()
+    tab.wait_until_idle()
+    return context, tab
+
+
+def test_the_page_fills_a_large_window_and_stacks_its_columns_in_a_narrow_one(browser, server):
+    # 1440×900: three columns side by side, their tabs as tall as the window allows
+    context, tab = open_at(browser, server, 1440, 900)
+    try:
+        tab.screenshot("16-layout-1440x900")
+        layout = tab.page.evaluate(_LAYOUT_SCRIPT)
+        tops = [top for _, top, _, _ in layout["starts"]]
+        assert max(tops) - min(tops) < 40  # one row
+        bottoms = [bottom for *_, bottom in layout["bodies"]]
+        assert len(bottoms) >= 2  # the visible tab of each side column
+        assert max(bottoms) <= 900 + 1 and min(bottoms) > 900 - 20  # they fill the height, nothing below the fold
+        assert layout["scroll"][0] <= 1440 and layout["scroll"][1] <= 900  # no scroll bars
+        assert not tab.problems
+    finally:
+        context.close()
+    # 760 px wide: the columns stack (each below the other) instead of shrinking or clipping
+    context, tab = open_at(browser, server, 760, 900)
+    try:
+        tab.screenshot("17-layout-760-wide")
+        layout = tab.page.evaluate(_LAYOUT_SCRIPT)
+        tops = [top for _, top, _, _ in layout["starts"]]
+        assert tops[0] < tops[1] < tops[2] and tops[2] - tops[0] > 600  # stacked, one below the other
+        assert layout["scroll"][0] <= 760  # nothing sticks out sideways
+        assert not tab.problems
+    finally:
+        context.close()
