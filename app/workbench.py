@@ -48,6 +48,7 @@ from .views.estimator_sliders import EstimatorSliders
 from .views.file_panel import FilePanel
 from .views.gain_matrix import GainEntries
 from .views.keyboard import NudgeKeys, TabKeys
+from .views.loop_response import LoopResponse
 from .views.lqr_panel import LqrPanel
 from .views.page_header import PageHeader
 from .views.plant_panel import PlantPanel
@@ -130,6 +131,7 @@ class Workbench:
         self.responses = ResponsePlots(state)
         self.pole_table = PoleTable(state)
         self.checks = ChecksTable(state)
+        self.loop_response = LoopResponse(state)
         self.plant_panel = PlantPanel(state)
         self.lqr_panel = LqrPanel(state)
         self.edit_mode = EditMode(state)
@@ -151,6 +153,7 @@ class Workbench:
             "design_bar": self.design_bar.refresh,
             "pole_table": self.pole_table.refresh,
             "checks": self.checks.refresh,
+            "loop_response": self.loop_response.refresh,
             "plant_panel": self.plant_panel.refresh,
             "lqr_panel": self.lqr_panel.refresh,
             "edit_mode": self.edit_mode.refresh,
@@ -237,6 +240,7 @@ class Workbench:
             ("Responses", scrolling(pn.Column(self.responses.panel, self.estimator_responses.panel, margin=0), 478)),
             ("Checks", scrolling(pn.Column(self.compensator_checks.panel, self.checks.panel, margin=0), 478)),
             ("Poles", scrolling(self.pole_table.panel, 478)),
+            ("Loop", scrolling(self.loop_response.panel, 478)),
             ("Robust", scrolling(self.robust_panel.panel, 478)),
             width=480, margin=(0, 5), dynamic=False,
         )

@@ -17,6 +17,7 @@ from ._responses import *  # noqa: F401,F403
 from ._spec_checks import *  # noqa: F401,F403
 from ._lqr import *  # noqa: F401,F403
 from ._margins import *  # noqa: F401,F403
+from ._loop_frequency import *  # noqa: F401,F403
 from ._integral_action import *  # noqa: F401,F403
 from ._sampling_check import *  # noqa: F401,F403
 from ._emulation import *  # noqa: F401,F403

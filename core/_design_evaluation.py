@@ -125,6 +125,9 @@ class DesignEvaluation:
         Slider ranges, the pole-map frame with the spec region, response axes (see :func:`view_ranges`).
     emulation : EmulationCheck or None
         K run through a ZOH at ``options.emulation_sample_time`` (None when not asked for).
+    loop_frequency : LoopFrequencyResponse or None
+        Each input's loop and the input sensitivity over frequency, with where the margins are
+        read (computed with the margins; None without them).
     """
 
     plant: Plant
@@ -146,6 +149,7 @@ class DesignEvaluation:
     messages: tuple[str, ...] = field(default=())
     view_ranges: ViewRanges | None = None
     emulation: object | None = None
+    loop_frequency: object | None = None
 
 
 # Results that depend on the plant alone (structure, open-loop poles), kept while the
@@ -261,6 +265,15 @@ def evaluate_design(plant: Plant, gain, options: EvaluationOptions | None = None
         except GainboardError as error:  # margins are advisory; the rest of the evaluation still stands
             messages.append(f"Loop margins not computed: {error}")
 
+    loop_frequency = None
+    if options.include_margins:
+        from ._loop_frequency import loop_frequency_response
+
+        try:
+            loop_frequency = loop_frequency_response(plant, K, margins)
+        except GainboardError as error:  # a view of the margins; the rest of the evaluation still stands
+            messages.append(f"Loop frequency response not computed: {error}")
+
     emulation = None
     if options.emulation_sample_time is not None and not plant.is_sampled:
         from ._emulation import evaluate_emulation  # it evaluates the sampled loop with evaluate_design
@@ -299,6 +312,7 @@ def evaluate_design(plant: Plant, gain, options: EvaluationOptions | None = None
             previous=options.previous_view, gesture=options.gesture, entry_intervals=intervals,
         ),
         emulation=emulation,
+        loop_frequency=loop_frequency,
     )
 
 

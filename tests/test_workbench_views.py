@@ -136,3 +136,49 @@ def test_adopting_the_lqr_design_gives_the_exact_bryson_lqr_not_one_of_rounded_w
     panel.q_input.value = "1, 1"
     panel.compute_button.clicks += 1
     np.testing.assert_array_equal(np.diag(state.lqr_weights[0]), [1.0, 1.0])
+
+
+def test_the_loop_view_marks_the_cores_margins_where_numpy_finds_them(workbench):
+    from gainboard.app.views.loop_response import loop_summary_html
+
+    state, view = workbench.state, workbench.loop_response
+    margins = state.evaluation.margins
+    # L(s) = K(sI − A)⁻¹B = (8s² + 55s + 199)/(s³ + 6s² + 5s + 1) for case 1 (companion form, derived);
+    # the gain crossover solves |N(jω)|² = |D(jω)|², a polynomial in ω² (numpy's roots as the reference).
+    N, D = np.poly1d([8.0, 55.0, 199.0]), np.poly1d([1.0, 6.0, 5.0, 1.0])
+    def at(poly, w):
+        return poly(1j * w)
+    # |N|² − |D|² in ω: even polynomial; solve on a fine bracket with numpy
+    w = np.linspace(0.01, 100, 200001)
+    f = np.abs(at(N, w)) ** 2 - np.abs(at(D, w)) ** 2
+    k = np.flatnonzero(np.sign(f[:-1]) != np.sign(f[1:]))
+    crossovers = [np.interp(0, [f[i + 1], f[i]], [w[i + 1], w[i]]) for i in k]
+    assert len(crossovers) == 1
+    crossover = crossovers[0]
+    expected_margin = 180.0 + np.degrees(np.angle(at(N, crossover) / at(D, crossover)))
+    loop = margins.loop_at_a_time[0]
+    assert loop.crossover_frequency == pytest.approx(crossover, rel=1e-6)
+    assert loop.phase_margin_deg == pytest.approx(expected_margin, rel=1e-6)
+    # the view marks that crossover on its curves: |L| = 0 dB there, and the polar mark on the unit circle
+    marks = view.gain_marks.data
+    assert list(marks["w"]) == [loop.crossover_frequency]
+    assert abs(marks["db"][0]) < 1e-9 and abs(np.hypot(marks["x"][0], marks["y"][0]) - 1) < 1e-9
+    assert 180.0 + marks["deg"][0] == pytest.approx(loop.phase_margin_deg, abs=1e-9)
+    # the numbers shown are the core's
+    text = loop_summary_html(state.evaluation, 0)
+    from gainboard.app.theme import format_number
+    assert f"{format_number(loop.phase_margin_deg, 4)}°" in text
+    assert "1/‖S‖∞ at the input" in text and format_number(margins.disk_margin, 4) in text
+    # the drawn curve is K(jωI − A)⁻¹B (numpy polynomials) at the grid points
+    curve = view.curve.data
+    values = at(N, np.asarray(curve["w"])) / at(D, np.asarray(curve["w"]))
+    np.testing.assert_allclose(curve["db"], 20 * np.log10(np.abs(values)), atol=1e-9)
+
+
+def test_a_sampled_loop_is_drawn_up_to_the_nyquist_frequency():
+    plant = core.discretize_zero_order_hold(core.load_plant_file(DATA / "third_order_reference.toml"), 0.05)
+    bench = build_workbench(plant).workbench
+    bench.state.set_gain(REFERENCE_GAIN)
+    omega = np.asarray(bench.loop_response.curve.data["w"])
+    assert omega[-1] == pytest.approx(np.pi / 0.05, rel=1e-12)
+    assert "Nyquist" in bench.loop_response.summary.object

@@ -189,3 +189,18 @@ def test_the_page_fills_a_large_window_and_stacks_its_columns_in_a_narrow_one(br
         assert not tab.problems
     finally:
         context.close()
+
+
+def test_the_loop_tab_shows_the_cores_phase_margin_on_its_plots(workbench):
+    from gainboard.app.theme import format_number
+
+    workbench.set_gain_text(REFERENCE_GAIN)
+    workbench.open_tab("Loop")
+    page = workbench.page
+    margins = core.loop_margins(reference_plant(), [[199.0, 55.0, 8.0]])  # the core's margins
+    expected = f"{format_number(margins.phase_margin_deg, 4)}°"
+    workbench.wait_for(lambda: expected in page.locator(".gb-note").all_inner_texts().__str__(), "the phase margin")
+    marks = page.evaluate("""() => { const s = Bokeh.documents[0].get_model_by_name('loop_gain_crossovers');
+                                    return Array.from(s.data.w); }""")
+    assert marks == [margins.crossover_frequency]
+    workbench.screenshot("18-loop-tab")
