@@ -47,7 +47,7 @@ from .views.estimator_responses import EstimatorResponses
 from .views.estimator_sliders import EstimatorSliders
 from .views.file_panel import FilePanel
 from .views.gain_matrix import GainEntries
-from .views.keyboard import NudgeKeys, TabKeys
+from .views.keyboard import HistoryKeys, NudgeKeys, TabKeys
 from .views.loop_response import LoopResponse
 from .views.lqr_panel import LqrPanel
 from .views.page_header import PageHeader
@@ -245,9 +245,12 @@ class Workbench:
             width=480, margin=(0, 5), dynamic=False,
         )
         nudges = NudgeKeys(on_nudge=self._nudge, on_end=self.state.end_gesture, width=0, height=0, margin=0)
+        history_keys = HistoryKeys(on_undo=lambda: self._guarded(self.state.undo),
+                                   on_redo=lambda: self._guarded(self.state.redo), width=0, height=0, margin=0)
         return pn.Column(
             TabKeys(width=0, height=0, margin=0),
             nudges,
+            history_keys,
             *self.page_header.panels,
             # a window narrower than the three columns (≤ 800 px, say) stacks them instead of shrinking them
             pn.FlexBox(left, centre, right, flex_wrap="wrap", align_items="flex-start", margin=0,

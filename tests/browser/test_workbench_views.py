@@ -204,3 +204,31 @@ def test_the_loop_tab_shows_the_cores_phase_margin_on_its_plots(workbench):
                                     return Array.from(s.data.w); }""")
     assert marks == [margins.crossover_frequency]
     workbench.screenshot("18-loop-tab")
+
+
+def test_ctrl_z_and_ctrl_shift_z_undo_and_redo_unless_typing_in_a_field(workbench):
+    page = workbench.page
+    workbench.set_gain_text(REFERENCE_GAIN)
+    workbench.set_gain_text("[[100, 40, 8]]")
+    page.locator(".gb-status").click()  # focus on the page, not in a field
+    before = workbench.revision()
+    page.keyboard.press("Control+z")
+    workbench.wait_for_revision_above(before)
+    workbench.wait_for(lambda: workbench.gain_text() == REFERENCE_GAIN, "Ctrl+Z to undo")
+    before = workbench.revision()
+    page.keyboard.press("Control+Shift+z")
+    workbench.wait_for_revision_above(before)
+    workbench.wait_for(lambda: workbench.gain_text() == "[[100, 40, 8]]", "Ctrl+Shift+Z to redo")
+    page.keyboard.press("Control+z")
+    workbench.wait_for(lambda: workbench.gain_text() == REFERENCE_GAIN, "Ctrl+Z again")
+    page.keyboard.press("Control+y")
+    workbench.wait_for(lambda: workbench.gain_text() == "[[100, 40, 8]]", "Ctrl+Y to redo")
+    # in a text field the keys belong to the field: the design stays
+    field = page.locator(".gb-targets input")
+    field.click()
+    workbench.wait_until_idle()
+    revision = workbench.revision()
+    page.keyboard.press("Control+z")
+    page.wait_for_timeout(600)  # nothing is expected to happen: give a wrong reaction time to show
+    workbench.wait_until_idle()
+    assert workbench.revision() == revision  # no new design (the browser's own undo acts in the field)
