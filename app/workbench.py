@@ -124,7 +124,7 @@ class Workbench:
 
         self.page_header = PageHeader(state, on_restore=self.restore_offered, on_discard=self.discard_offered)
         self.pole_map = PoleMap(state, self.scheduler)
-        self.entry_choice = EntryChoice(state, on_fit=self.pole_map.fit_view)
+        self.entry_choice = EntryChoice(state, on_fit=self.pole_map.fit_view, on_lock=self.pole_map.lock_view)
         self.gains = GainEntries(state, self.scheduler)
         self.sliders = self.gains.sliders  # one slider per entry (small K); the matrix is self.gains.matrix
         self.design_bar = DesignBar(state)

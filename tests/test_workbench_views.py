@@ -182,3 +182,20 @@ def test_a_sampled_loop_is_drawn_up_to_the_nyquist_frequency():
     omega = np.asarray(bench.loop_response.curve.data["w"])
     assert omega[-1] == pytest.approx(np.pi / 0.05, rel=1e-12)
     assert "Nyquist" in bench.loop_response.summary.object
+
+
+def test_the_pole_map_follows_its_stated_rule_and_lock_keeps_the_users_view(workbench):
+    state, pole_map = workbench.state, workbench.pole_map
+    figure = pole_map.figure
+    assert "view follows the poles" in pole_map.legend.object
+    # a much faster design puts a pole far outside the view: followed, the view refits to show it
+    # (poles from Ackermann's formula, checked with numpy's eigenvalues in the state tests)
+    state.place_poles([-2 + 4j, -2 - 4j, -60])
+    assert figure.x_range.start < -60
+    workbench.entry_choice.lock_toggle.value = True
+    assert "view locked" in pole_map.legend.object
+    locked = (figure.x_range.start, figure.x_range.end, figure.y_range.start, figure.y_range.end)
+    state.place_poles([-2 + 4j, -2 - 4j, -200])
+    assert (figure.x_range.start, figure.x_range.end, figure.y_range.start, figure.y_range.end) == locked
+    workbench.entry_choice.lock_toggle.value = False  # following again: fitted to the content at once
+    assert figure.x_range.start < -200

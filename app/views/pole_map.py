@@ -87,6 +87,7 @@ class PoleMap:
         self._setting_poles = False
         self._drag = None
         self._view = None  # (x0, x1, y0, y1) as last fitted
+        self.locked = False  # True: the ranges stay until "Fit view" or a change of plant
         self._plant = None
         self._shown_poles: list[complex] = []
 
@@ -210,7 +211,7 @@ class PoleMap:
             self._plant = plant
             self._configure_plane(sampled)
             self._fit(evaluation)
-        elif not self.state.gesture_active and self._view_needs_fit(evaluation):
+        elif not self.locked and not self.state.gesture_active and self._view_needs_fit(evaluation):
             self._fit(evaluation)
 
         x, y = _xy(evaluation.open_loop.poles)
@@ -402,6 +403,10 @@ class PoleMap:
         keys.append((PALETTE["unstable_region"], "■", "unstable"))
         key_html = " ".join(f'<span class="key" style="color:{colour}">{mark}</span>{text}' for colour, mark, text in keys)
         rows.append(key_html)
+        rows.append('<span class="gb-view-rule">' + (
+            "view locked: only “Fit view” (or another plant) reframes it" if self.locked else
+            f"view follows the poles: reframed when a pole comes within {EDGE_FRACTION:.0%} of an edge or all "
+            f"shrink below {SHRUNK_FRACTION:.0%} of it (not during a drag; zooming keeps your view)") + "</span>")
         self.legend.object = "<div class='gb-map-legend'>" + "<br>".join(rows) + "</div>"
 
     # -- view extent --------------------------------------------------------------------------
@@ -415,6 +420,14 @@ class PoleMap:
         self._view = (x0, x1, y0, y1)
         self.figure.x_range.update(start=x0, end=x1, reset_start=x0, reset_end=x1)
         self.figure.y_range.update(start=y0, end=y1, reset_start=y0, reset_end=y1)
+
+    def lock_view(self, locked: bool) -> None:
+        """Keep the ranges where they are (``locked``) or let them follow the content again (fitting now)."""
+        self.locked = bool(locked)
+        if not self.locked and self.state.evaluation is not None and self._view_needs_fit(self.state.evaluation):
+            self.fit_view()
+        if self.state.evaluation is not None:
+            self._refresh_legend(self.state.evaluation)
 
     def fit_view(self) -> None:
         """Frame the current design again (the "Fit view" button)."""
