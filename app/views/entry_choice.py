@@ -24,11 +24,14 @@ class EntryChoice:
         self.choice = pn.widgets.Select(label="", options={}, width=235, margin=(2, 5),
                                         description="Entry whose locus and arrows are drawn")
         self.choice.param.watch(self._chosen, "value")
-        self.fit_button = pn.widgets.Button(label="Fit view", width=72, margin=(2, 3),
-                                            description="Frame the poles, the spec region and the locus now")
-        self.fit_button.on_click(lambda event: on_fit())
-        # The pole map's ranges follow the content by the rule its legend states; locked, they stay
+        # The pole map's ranges follow the content by the rule stated under the map; locked, they stay
         # where the user put them until "Fit view" (a change of plant or time domain still fits).
+        self.fit_button = pn.widgets.Button(
+            label="Fit view", width=72, margin=(2, 3),
+            description="Frame the poles, the spec region and the locus now. Unlocked, the map refits by itself "
+                        "when a pole comes within 5 % of an edge or everything fills less than 30 % of it (never "
+                        "during a drag; after you zoom or pan, only a pole leaving the view refits)")
+        self.fit_button.on_click(lambda event: on_fit())
         self.lock_toggle = pn.widgets.Toggle(label="Lock view", value=False, width=80, margin=(2, 3),
                                              css_classes=["gb-lock-view"])
         if on_lock is not None:

@@ -55,7 +55,7 @@ from .html_box import HtmlBox
 __all__ = ["PoleMap"]
 
 FRAME_WIDTH = 395
-FRAME_HEIGHT = 375
+FRAME_HEIGHT = 355
 #: A press within this many pixels of a closed-loop pole starts dragging it.
 PICK_RADIUS_PX = 16
 #: Drops this many pixels from the real axis land on it.
@@ -404,9 +404,9 @@ class PoleMap:
         key_html = " ".join(f'<span class="key" style="color:{colour}">{mark}</span>{text}' for colour, mark, text in keys)
         rows.append(key_html)
         rows.append('<span class="gb-view-rule">' + (
-            "view locked: only “Fit view” (or another plant) reframes it" if self.locked else
-            f"view follows the poles: reframed when a pole comes within {EDGE_FRACTION:.0%} of an edge or all "
-            f"shrink below {SHRUNK_FRACTION:.0%} of it (not during a drag; zooming keeps your view)") + "</span>")
+            "view locked: only “Fit view” or another plant reframes it" if self.locked else
+            f"view follows the poles: refits if one nears an edge ({EDGE_FRACTION:.0%}) or all fill under "
+            f"{SHRUNK_FRACTION:.0%}") + "</span>")
         self.legend.object = "<div class='gb-map-legend'>" + "<br>".join(rows) + "</div>"
 
     # -- view extent --------------------------------------------------------------------------
