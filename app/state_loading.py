@@ -83,8 +83,7 @@ class LoadingMixin:
         self.history.clear()
         self._drag = None
         self._sync_history_depths()
-        with param.edit_constant(self):
-            self.pinned = None
+        self._clear_pins()
         self._reset_lqr_weights()
         self.placement_summary = ""
         self._say(" ".join(n for n in (note, start_note) if n), "note")

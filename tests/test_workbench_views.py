@@ -199,3 +199,29 @@ def test_the_pole_map_follows_its_stated_rule_and_lock_keeps_the_users_view(work
     assert (figure.x_range.start, figure.x_range.end, figure.y_range.start, figure.y_range.end) == locked
     workbench.entry_choice.lock_toggle.value = False  # following again: fitted to the content at once
     assert figure.x_range.start < -200
+
+
+def test_several_named_pins_are_compared_in_the_checks_table(workbench):
+    from gainboard.app.state import MAX_PINS
+    from gainboard.app.theme import format_number
+
+    state, checks = workbench.state, workbench.checks
+    state.pin("textbook")  # K = [199, 55, 8]: Ogata Example 10-1 (from memory)
+    textbook = state.evaluation
+    state.set_gain([[100.0, 40.0, 8.0]])
+    state.pin()
+    assert [name for name, _ in state.pins] == ["textbook", "pin 1"]
+    state.set_gain([[150.0, 50.0, 8.0]])
+    html = checks.pane.object
+    assert "textbook" in html and "pin 1" in html and "gb-pin-comparison" in html
+    # the pinned values shown are the pinned evaluations' own numbers
+    assert format_number(textbook.margins.phase_margin_deg) in html
+    assert format_number(textbook.spec_report.checks[0].achieved) in html
+    # the ghost is the chosen pin; unpinning it shows the newest remaining one
+    assert state.show_pin("textbook") and state.pinned is textbook
+    assert workbench.design_bar.pin_choice.value == "textbook"
+    state.unpin()
+    assert [name for name, _ in state.pins] == ["pin 1"] and state.pinned is state.pins[-1][1]
+    for _ in range(MAX_PINS + 1):  # a handful at most: the oldest goes
+        state.pin()
+    assert len(state.pins) == MAX_PINS and "dropped" in state.message

@@ -36,7 +36,12 @@ class DesignBar:
             stylesheets=[":host textarea { font-family: ui-monospace, monospace; font-size: 12.5px; }"],
         )
         self.apply_gain = pn.widgets.Button(label="Apply K", width=80, margin=(2, 5), color="primary")
-        self.copy_gain = pn.widgets.Button(label="Copy K", width=80, margin=(2, 5))
+        self.copy_gain = pn.widgets.Button(label="Copy K", width=70, margin=(2, 5))
+        # which pin is drawn as the ghost (every pin is compared in the Checks tab)
+        self.pin_choice = pn.widgets.Select(options=[], width=150, margin=(2, 5), disabled=True,
+                                            css_classes=["gb-pin-choice"], description="The pin drawn as ghosts")
+        self.pin_choice.param.watch(self._pin_chosen, "value")
+        self._syncing_pins = False
         self.copy_gain.js_on_click(args={"source": self.gain_text},
                                    code="navigator.clipboard && navigator.clipboard.writeText(source.value)")
         self.targets = pn.widgets.TextInput(label="Target poles (keyboard alternative to dragging; Enter assigns)",
@@ -53,12 +58,12 @@ class DesignBar:
         self.assign_button.on_click(lambda event: self._assign())
         self.targets.param.watch(lambda event: self._assign(), "enter_pressed")  # Enter assigns, as the button
         self._targets_filled_for = None  # the design whose poles the box was last filled with
-        self.state.param.watch(lambda *events: self.refresh_buttons(), ["undo_depth", "redo_depth", "pinned"])
+        self.state.param.watch(lambda *events: self.refresh_buttons(), ["undo_depth", "redo_depth", "pinned", "pins"])
 
         self.panel = pn.Column(
             pn.Row(self.undo_button, self.redo_button, self.pin_button, self.unpin_button, self.back_button, margin=0),
             self.gain_text,
-            pn.Row(self.apply_gain, self.copy_gain, margin=0),
+            pn.Row(self.apply_gain, self.copy_gain, self.pin_choice, margin=0),
             margin=0,
         )
         self.placement = HtmlBox(css=TABLE_CSS, width=WIDTH + 110, height=34)
@@ -90,6 +95,21 @@ class DesignBar:
         has_pin = self.state.pinned is not None
         self.unpin_button.disabled = not has_pin
         self.back_button.disabled = not has_pin
+        names = [name for name, _ in self.state.pins]
+        self._syncing_pins = True
+        try:
+            if self.pin_choice.options != names:
+                self.pin_choice.options = names
+            shown = self.state.pinned_name
+            if shown is not None and self.pin_choice.value != shown:
+                self.pin_choice.value = shown
+            self.pin_choice.disabled = not names
+        finally:
+            self._syncing_pins = False
+
+    def _pin_chosen(self, event) -> None:
+        if not self._syncing_pins and event.new:
+            self.state.show_pin(event.new)
 
     def refresh(self, evaluation) -> None:
         self.gain_text.value = format_gain_text(evaluation.gain)
