@@ -21,6 +21,7 @@ from bokeh.plotting import figure
 from ..theme import PALETTE, TABLE_CSS, format_number, trace_colour
 from .data_sources import update_source
 from .html_box import HtmlBox
+from .responses import style_plot
 
 __all__ = ["LoopResponse", "loop_summary_html"]
 
@@ -30,22 +31,6 @@ PLOT_WIDTH = 460
 def _decibels(values) -> np.ndarray:
     with np.errstate(divide="ignore"):
         return 20.0 * np.log10(np.abs(values))
-
-
-def _style(fig, title: str, x_label: str | None, y_label: str) -> None:
-    fig.title.text = title
-    fig.title.text_color = PALETTE["muted"]
-    fig.title.text_font_style = "normal"
-    fig.title.text_font_size = "12px"
-    fig.grid.grid_line_color = "#ece8de"
-    fig.axis.major_label_text_color = PALETTE["muted"]
-    fig.axis.axis_line_color = PALETTE["rule"]
-    fig.xaxis.axis_label = x_label
-    fig.yaxis.axis_label = y_label
-    fig.axis.axis_label_text_font_style = "normal"
-    fig.axis.axis_label_text_color = PALETTE["muted"]
-    fig.toolbar.logo = None
-    fig.min_border_left = 55
 
 
 class LoopResponse:
@@ -63,9 +48,9 @@ class LoopResponse:
                             x_range=self.magnitude.x_range, **common)
         self.polar = figure(width=PLOT_WIDTH, height=300, name="loop_polar", match_aspect=True,
                             x_range=Range1d(-3, 1), y_range=Range1d(-2, 2), **common)
-        _style(self.magnitude, "magnitude of L(jω) and of the input sensitivity S", None, "dB")
-        _style(self.phase, "phase of L(jω)", "frequency ω (rad/s)", "degrees")
-        _style(self.polar, "polar plot of L(jω) around the critical point −1", "real part", "imaginary part")
+        style_plot(self.magnitude, "magnitude of L(jω) and of the input sensitivity S", None, "dB")
+        style_plot(self.phase, "phase of L(jω)", "frequency ω (rad/s)", "degrees")
+        style_plot(self.polar, "polar plot of L(jω) around the critical point −1", "real part", "imaginary part")
 
         self.curve = ColumnDataSource({"w": [], "db": [], "deg": [], "sdb": []}, name="loop_curve")
         self.polar_curve = ColumnDataSource({"x": [], "y": [], "mx": [], "my": []}, name="loop_polar_curve")

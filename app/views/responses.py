@@ -19,7 +19,7 @@ from ..theme import PALETTE, format_number, trace_colour
 from .data_sources import update_source
 from .html_box import HtmlBox
 
-__all__ = ["ResponsePlots", "RESPONSE_KINDS"]
+__all__ = ["ResponsePlots", "RESPONSE_KINDS", "style_plot"]
 
 #: Button label → attribute of the core's ResponseSet.
 RESPONSE_KINDS = {"Initial condition": "initial", "Reference step": "step", "Disturbance": "disturbance"}
@@ -110,6 +110,24 @@ def _traces(response, which: str, saturated_which: str | None, *, kind: str = LI
     return response.time, traces
 
 
+def style_plot(fig, title: str, x_label: str | None = None, y_label: str | None = None) -> None:
+    """The look of the workbench's plots (responses, loop frequency response): muted title, axes and grid."""
+    fig.title.text = title
+    fig.title.text_color = PALETTE["muted"]
+    fig.title.text_font_style = "normal"
+    fig.title.text_font_size = "12px"
+    fig.grid.grid_line_color = "#ece8de"
+    fig.axis.major_label_text_color = PALETTE["muted"]
+    fig.axis.axis_line_color = PALETTE["rule"]
+    fig.xaxis.axis_label = x_label
+    if y_label is not None:
+        fig.yaxis.axis_label = y_label
+    fig.axis.axis_label_text_font_style = "normal"
+    fig.axis.axis_label_text_color = PALETTE["muted"]
+    fig.toolbar.logo = None
+    fig.min_border_left = 55
+
+
 def _emulated(evaluation):
     """The sampled loop of the emulation check (a DesignEvaluation), or None."""
     emulation = getattr(evaluation, "emulation", None)
@@ -182,18 +200,7 @@ class ResponsePlots:
             toolbar_location=None, name=name, background_fill_color="#fdfcf9",
             border_fill_color=PALETTE["paper"], outline_line_color=PALETTE["rule"],
         )
-        fig.title.text = title
-        fig.title.text_color = PALETTE["muted"]
-        fig.title.text_font_style = "normal"
-        fig.title.text_font_size = "12px"
-        fig.grid.grid_line_color = "#ece8de"
-        fig.axis.major_label_text_color = PALETTE["muted"]
-        fig.axis.axis_line_color = PALETTE["rule"]
-        fig.xaxis.axis_label = "time (s)" if what == "input" else None
-        fig.axis.axis_label_text_font_style = "normal"
-        fig.axis.axis_label_text_color = PALETTE["muted"]
-        fig.toolbar.logo = None
-        fig.min_border_left = 55
+        style_plot(fig, title, "time (s)" if what == "input" else None)
         return fig
 
     @property
