@@ -231,12 +231,20 @@ def command_evaluate(args) -> int:
     x0 = parse_vector(args.x0, plant.state_count, "--x0") if args.x0 else None
     if args.horizon is not None and not (math.isfinite(args.horizon) and args.horizon > 0):
         raise UsageError(f"--horizon must be a positive number of seconds, got {args.horizon}")
+    sample_time = args.sample_time
+    if sample_time is not None:
+        if not (math.isfinite(sample_time) and sample_time > 0):
+            raise UsageError(f"--sample-time must be a positive, finite number of seconds, got {sample_time}")
+        if plant.is_sampled:
+            raise UsageError(f"--sample-time checks a continuous design run through a hold, but {plant.name!r} is "
+                             f"already sampled (T = {plant.sample_time:g} s)")
     options = core.EvaluationOptions(
         selected_entry=None,
         initial_state=x0,
         horizon=args.horizon,
         specs=specs,
         include_all_entry_intervals=False,
+        emulation_sample_time=sample_time,
     )
     evaluation = gainboard.evaluate_design(plant, gain, options)
     record = evaluation.to_dict()
@@ -380,6 +388,9 @@ def build_parser() -> argparse.ArgumentParser:
     evaluate.add_argument("--specs", help="spec file (TOML) to check against (default: the plant file's [specs])")
     evaluate.add_argument("--horizon", type=float, help="simulation length in seconds (default: from the slowest pole)")
     evaluate.add_argument("--operating-point", metavar="NAME", help=point_help)
+    evaluate.add_argument("--sample-time", type=float, metavar="T",
+                          help="also check K run by a sampled controller through a zero-order hold every T seconds "
+                               "(continuous plants): z-plane poles, stability, largest stable T")
     evaluate.add_argument("--json", action="store_true", help="print JSON instead of a table")
     cli_estimator.add_evaluate_options(evaluate)
     evaluate.set_defaults(handler=command_evaluate)

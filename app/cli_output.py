@@ -283,6 +283,8 @@ def evaluation_record(evaluation, specs_given: bool) -> dict:
         "margins": dataclasses.asdict(evaluation.margins) if evaluation.margins is not None else None,
         "messages": list(evaluation.messages),
     }
+    if evaluation.emulation is not None:
+        record["sampled"] = emulation_record(evaluation.emulation)
     if specs_given and evaluation.spec_report is not None:
         report = evaluation.spec_report
         record["specs"] = {
@@ -292,9 +294,31 @@ def evaluation_record(evaluation, specs_given: bool) -> dict:
     return record
 
 
+def emulation_record(emulation) -> dict:
+    """``evaluate --sample-time``: the continuous K run through a ZOH (``sampled`` in the JSON).
+
+    ``largest_stable_sample_time`` is null when no loss of stability was found up to
+    ``searched_up_to`` seconds (or, with ``searched_up_to`` null, when the continuous design
+    itself is unstable and nothing was searched).
+    """
+    check = emulation.check
+    largest = emulation.largest_stable_sample_time
+    return {
+        "sample_time": emulation.sample_time,
+        "poles": complex_pairs(emulation.sampled.closed_loop.poles),
+        "stable": emulation.stable,
+        "largest_stable_sample_time": None if largest is None or math.isinf(largest) else largest,
+        "searched_up_to": check.searched_up_to,
+        "equivalent_continuous_poles": complex_pairs(check.equivalent_continuous_poles),
+        "worst_damping_change": check.worst_damping_change,
+        "note": check.note,
+    }
+
+
 def evaluation_table(record: dict) -> str:
+    sampled_plant = record["sampled"] is True
     lines = [
-        f"Plant: {record['plant']}" + (f" (sampled, T = {record['sample_time']} s)" if record["sampled"] else ""),
+        f"Plant: {record['plant']}" + (f" (sampled, T = {record['sample_time']} s)" if sampled_plant else ""),
         "Closed loop: " + _verdict_words(record["stability_verdict"], "STABLE", "UNSTABLE")
         + ("" if record["controllable"] else "; uncontrollable poles: "
            + ", ".join(format_complex(p) for p in record["uncontrollable_poles"])),
@@ -333,5 +357,22 @@ def evaluation_table(record: dict) -> str:
             verdict = {True: "pass", False: "FAIL", None: "not evaluated"}[check["passed"]]
             lines.append(f"  {verdict:>13}  {check['description']}: required {format_number(check['required'], 4)}, "
                          f"achieved {format_number(check['achieved'], 4)}")
+    if isinstance(record["sampled"], dict):
+        lines.extend(_emulation_lines(record["sampled"]))
     lines.extend(f"note: {message}" for message in record["messages"])
     return "\n".join(lines) + "\n"
+
+
+def _emulation_lines(sampled: dict) -> list[str]:
+    largest, bound = sampled["largest_stable_sample_time"], sampled["searched_up_to"]
+    if largest is not None:
+        reach = f"stable for T up to {format_number(largest, 6)} s"
+    elif bound is not None:
+        reach = f"no loss of stability found for T up to {format_number(bound, 4)} s"
+    else:
+        reach = "the continuous design itself is unstable"
+    return [
+        f"sampled through a ZOH at T = {format_number(sampled['sample_time'])} s: "
+        + ("STABLE" if sampled["stable"] else "UNSTABLE") + f"; {reach}",
+        "  z-plane poles: " + ", ".join(format_complex(p) for p in sampled["poles"]),
+    ]

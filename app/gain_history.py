@@ -100,6 +100,10 @@ class GainLog:
             self.entries = (self.entries + ((when, gain),))[-MAX_GAIN_HISTORY:]
         self.modified = when
 
+    def follow(self, plant) -> None:
+        """Keep the entries for ``plant``: the same design moved to another time domain (sampled or back)."""
+        self._plant = plant
+
     def restart(self, plant, entries=()) -> None:
         """Start over for ``plant`` with ``entries`` (e.g. those of an opened design file)."""
         self.entries, self._plant = tuple(entries), plant

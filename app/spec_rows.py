@@ -16,8 +16,12 @@ def verdict_html(passed, prefix: str = "") -> str:
     return f'<span class="{prefix}pass">pass</span>' if passed else f'<span class="{prefix}fail">fail</span>'
 
 
-def spec_check_rows(report, *, prefix: str = "", detail_column: bool = False, digits: int = 4) -> str:
+def spec_check_rows(report, *, prefix: str = "", detail_column: bool = False, digits: int = 4,
+                    extra_columns=()) -> str:
     """One ``<tr>`` per check: spec (subject), required, achieved, verdict; what decided it as a tooltip or a column.
+
+    ``extra_columns``: more cells per row (each a list of texts, one per check), such as a pinned
+    design's achieved values.
 
     Examples
     --------
@@ -28,13 +32,14 @@ def spec_check_rows(report, *, prefix: str = "", detail_column: bool = False, di
     True
     """
     rows = []
-    for check in report.checks:
+    for index, check in enumerate(report.checks):
+        extra = "".join(f'<td class="num">{escape(column[index])}</td>' for column in extra_columns)
         subject = f" ({escape(check.subject)})" if check.subject else ""
         detail = f'<td class="small">{escape(check.detail)}</td>' if detail_column else ""
         rows.append(
             f'<tr title="{escape(check.detail)}"><td>{escape(check.description)}{subject}</td>'
             f'<td class="num">{escape(format_number(check.required, digits))}</td>'
             f'<td class="num">{escape(format_number(check.achieved, digits))}</td>'
-            f"<td>{verdict_html(check.passed, prefix)}</td>{detail}</tr>"
+            f"<td>{verdict_html(check.passed, prefix)}</td>{detail}{extra}</tr>"
         )
     return "".join(rows)

@@ -48,13 +48,17 @@ from .state_loading import MAX_NOTES_CHARACTERS, LoadingMixin
 from .state_estimator import EDITING_MODES, EstimatorMixin, same_point
 from .state_lqr import LqrMixin
 
-__all__ = ["DesignState", "MAX_NOTES_CHARACTERS", "plant_from_reference", "bundled_plant_catalogue"]
+__all__ = ["DesignState", "MAX_NOTES_CHARACTERS", "MAX_PINS", "plant_from_reference", "bundled_plant_catalogue"]
 
 log = logging.getLogger(__name__)
 
+#: Most designs kept pinned at once, and the longest pin name kept.
+MAX_PINS = 5
+MAX_PIN_NAME_CHARACTERS = 40
+
 #: The inputs an evaluation describes, with the labels that go with the plant.
 _INPUTS = ("plant", "plant_label", "plant_text", "continuous_origin", "gain", "selected_entry", "specs",
-           "estimator", "editing", "estimator_selected_entry")
+           "estimator", "editing", "estimator_selected_entry", "emulation_sample_time")
 
 
 class DesignState(LoadingMixin, LqrMixin, EstimatorMixin, param.Parameterized):
@@ -89,6 +93,11 @@ class DesignState(LoadingMixin, LqrMixin, EstimatorMixin, param.Parameterized):
         class_=core.Plant, default=None, allow_None=True,
         doc="The continuous plant a sampled plant was made from (ZOH), kept to go back to it.",
     )
+    emulation_sample_time = param.Number(
+        default=None, allow_None=True, bounds=(0, None), inclusive_bounds=(False, True),
+        doc="Sample time T (s) of the emulation check shown beside a continuous design: its K run through "
+            "a ZOH at T (the design itself is unchanged); None: no check.",
+    )
     gain = param.Array(doc="Feedback gain K, inputs × states (u = −Kx), in input units per state unit.")
     selected_entry = param.Tuple(
         default=(0, 0), length=2, allow_None=True,
@@ -112,6 +121,9 @@ class DesignState(LoadingMixin, LqrMixin, EstimatorMixin, param.Parameterized):
                             doc="Level of detail of the evaluation shown (see refresh_policy).")
     pinned = param.Parameter(default=None, constant=True,
                              doc="Evaluation of the pinned design shown as ghost poles and traces, or None.")
+    pins = param.Parameter(default=(), constant=True,
+                       doc="Named pinned designs, (name, evaluation) oldest first, at most MAX_PINS; "
+                           "``pinned`` is one of them.")
     lqr_weights = param.Parameter(default=None, constant=True,
                                   doc="(Q, R) weights of the LQR comparison, or None when it cannot be formed.")
     lqr_result = param.Parameter(default=None, constant=True,
@@ -179,6 +191,7 @@ class DesignState(LoadingMixin, LqrMixin, EstimatorMixin, param.Parameterized):
             selected_entry=self.selected_entry, specs=self.specs, include_margins=wanted.include_margins,
             include_all_entry_intervals=wanted.include_all_entry_intervals, gesture=wanted.gesture,
             previous_view=previous, reference_poles=tuple(reference),
+            emulation_sample_time=None if self.plant.is_sampled else self.emulation_sample_time,
         )
 
     def _set_inputs(self, detail: Detail = Detail.COMPLETE, **changes) -> None:
@@ -216,6 +229,7 @@ class DesignState(LoadingMixin, LqrMixin, EstimatorMixin, param.Parameterized):
         cache, key = self.evaluation_cache, None
         if cache is not None and refine is None and targets is None:
             key = (id(self.plant), id(self.specs), self.gain.shape, self.gain.tobytes(), self.selected_entry, detail,
+                   self.emulation_sample_time,
                    id(settings), self.editing, self.estimator_selected_entry)
             found = cache.get(key, self.plant, self.specs)
             if found is not None:
@@ -436,6 +450,8 @@ class DesignState(LoadingMixin, LqrMixin, EstimatorMixin, param.Parameterized):
         with self._reporting("undo" if back else "redo"):
             try:
                 changes = {"gain": target.gain, "estimator": target.estimator}
+                if target.place is not None and target.place["plant"] is not self.plant:
+                    changes.update(target.place)  # a step between time domains: the plant goes back too
                 if target.estimator is None and self.editing == "estimator":
                     changes["editing"] = "controller"
                 self._set_inputs(self.refresh.release(), **changes)
@@ -443,6 +459,8 @@ class DesignState(LoadingMixin, LqrMixin, EstimatorMixin, param.Parameterized):
                 self.history.revert_step(back=back)
                 raise
             self._sync_history_depths()
+            if "plant" in changes:
+                self._after_time_domain_change()
             self._commit()
             return True
         return False
@@ -463,16 +481,55 @@ class DesignState(LoadingMixin, LqrMixin, EstimatorMixin, param.Parameterized):
 
     # -- comparison --------------------------------------------------------------------------
 
-    def pin(self) -> None:
-        """Keep the current design as a ghost to compare against."""
+    def pin(self, name: str | None = None) -> None:
+        """Keep the current design as a named pin to compare against (at most MAX_PINS; the oldest goes).
+
+        The newest pin is the one drawn as ghost poles and traces (:attr:`pinned`); the checks
+        table shows every pin's values beside the current ones. ``name`` defaults to "pin N";
+        pinning under a name already used replaces that pin.
+        """
+        name = " ".join(str(name or "").split())[:MAX_PIN_NAME_CHARACTERS] or self._next_pin_name()
+        kept = [(n, e) for n, e in self.pins if n != name]
+        dropped = ""
+        if len(kept) >= MAX_PINS:
+            dropped = f" The oldest pin, “{kept[0][0]}”, was dropped (at most {MAX_PINS} are kept)."
+            kept = kept[1:]
+        kept.append((name, self.evaluation))
         with param.edit_constant(self):
-            self.pinned = self.evaluation
-        self._say("Pinned this design; its poles and traces stay as ghosts while you change K.", "note")
+            self.param.update(pins=tuple(kept), pinned=self.evaluation)
+        self._say(f"Pinned this design as “{name}”; its poles and traces stay as ghosts while you change K, and the "
+                  f"Checks tab shows its values beside the current ones.{dropped}", "note")
+
+    def _next_pin_name(self) -> str:
+        used = {n for n, _ in self.pins}
+        number = 1
+        while f"pin {number}" in used:
+            number += 1
+        return f"pin {number}"
+
+    @property
+    def pinned_name(self) -> str | None:
+        """Name of the pin drawn as the ghost, or None."""
+        return next((n for n, e in self.pins if e is self.pinned), None)
+
+    def show_pin(self, name: str) -> bool:
+        """Draw the pin called ``name`` as the ghost (False when there is none of that name)."""
+        found = next((e for n, e in self.pins if n == name), None)
+        if found is None:
+            return False
+        with param.edit_constant(self):
+            self.pinned = found
+        return True
 
     def unpin(self) -> None:
-        """Drop the pinned comparison."""
+        """Drop the pin drawn as the ghost (the newest remaining one is drawn next)."""
+        kept = tuple((n, e) for n, e in self.pins if e is not self.pinned)
         with param.edit_constant(self):
-            self.pinned = None
+            self.param.update(pins=kept, pinned=kept[-1][1] if kept else None)
+
+    def _clear_pins(self) -> None:
+        with param.edit_constant(self):
+            self.param.update(pins=(), pinned=None)
 
     def adopt_pinned(self) -> bool:
         """Make the pinned design's gain current again."""

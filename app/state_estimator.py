@@ -22,7 +22,7 @@ from .estimator_settings import EstimatorDesign
 from .pole_drag import targets_after_drag
 from .refresh_policy import Detail, detail_options
 
-__all__ = ["EstimatorMixin", "DesignPoint", "same_point", "EDITING_MODES", "ESTIMATOR_SPEED_FACTOR"]
+__all__ = ["EstimatorMixin", "DesignPoint", "PLACE_INPUTS", "same_point", "EDITING_MODES", "ESTIMATOR_SPEED_FACTOR"]
 
 #: What the sliders, the pole drags and the typed targets change.
 EDITING_MODES = ("controller", "estimator")
@@ -33,15 +33,26 @@ ESTIMATOR_SPEED_FACTOR = 3.0
 
 @dataclass(frozen=True, eq=False)
 class DesignPoint:
-    """What one undo step restores: K and the estimator (None without one)."""
+    """What one undo step restores: K, the estimator (None without one) and the plant with its labels.
+
+    The plant is part of a step because moving a continuous design to the z-plane (and back)
+    is undone like any change of K; ``place`` holds the plant's inputs of the state by name.
+    """
 
     gain: np.ndarray
     estimator: EstimatorDesign | None
+    place: dict | None = None
+
+
+#: The state's inputs that say which plant a design point belongs to (see DesignPoint.place).
+PLACE_INPUTS = ("plant", "plant_label", "plant_text", "continuous_origin", "emulation_sample_time")
 
 
 def same_point(first: DesignPoint, second: DesignPoint) -> bool:
-    """Bit-for-bit the same K, and the same estimator object (or the same L and form)."""
+    """Bit-for-bit the same K on the same plant object, and the same estimator object (or the same L and form)."""
     if first.gain.shape != second.gain.shape or first.gain.tobytes() != second.gain.tobytes():
+        return False
+    if (first.place or {}).get("plant") is not (second.place or {}).get("plant"):
         return False
     a, b = first.estimator, second.estimator
     if a is None or b is None:
@@ -55,7 +66,8 @@ class EstimatorMixin:
     # -- what the evaluation is asked for ----------------------------------------------------------
 
     def _point(self) -> DesignPoint:
-        return DesignPoint(np.array(self.gain, copy=True), self.estimator)
+        return DesignPoint(np.array(self.gain, copy=True), self.estimator,
+                           {name: getattr(self, name) for name in PLACE_INPUTS})
 
     def _estimator_options(self, detail: Detail, previous) -> core.EstimatorOptions | None:
         settings = self.estimator

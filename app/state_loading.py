@@ -116,7 +116,7 @@ class LoadingMixin:
         specs = plant.specs if isinstance(specs, str) else specs
         # the labels change with the plant (and go back with it if its evaluation fails)
         # a new plant starts without an estimator unless the design brings one (an L fits one plant only)
-        self._set_inputs(self.refresh.release(), plant_label=label, plant_text=text,
+        self._set_inputs(self.refresh.release(), plant_label=label, plant_text=text, emulation_sample_time=None,
                          continuous_origin=continuous_origin, plant=plant, gain=gain, selected_entry=(0, 0),
                          specs=specs, estimator=estimator, estimator_selected_entry=(0, 0),
                          editing="controller" if estimator is None else self.editing)
@@ -129,8 +129,7 @@ class LoadingMixin:
         self.history.clear()
         self._drag = None
         self._sync_history_depths()
-        with param.edit_constant(self):
-            self.pinned = None
+        self._clear_pins()
         self._reset_lqr_weights()
         self.placement_summary = ""
         self._say(" ".join(n for n in (note, start_note) if n), "note")
@@ -163,32 +162,112 @@ class LoadingMixin:
             return True
         return False
 
-    def sample_plant(self, sample_time: float) -> bool:
-        """Replace a continuous plant by its ZOH-sampled version (the continuous one is kept)."""
+    # -- time domains: the emulation check, the z-plane and back ---------------------------------
+
+    def check_sampling(self, sample_time) -> bool:
+        """Show what the current continuous K does when run through a ZOH at ``sample_time`` (seconds).
+
+        The design is not changed (K, undo/redo, pins and history stay): the evaluation gains
+        the emulation check (z-plane poles, margins, responses of the sampled loop, the largest
+        stable sample time); moving to the z-plane is a separate choice (:meth:`sample_plant`).
+        """
+        with self._reporting("check the sampled loop"):
+            if self.plant.is_sampled:
+                raise core.PlantError(
+                    f"the plant is already sampled (T = {self.plant.sample_time:g} s); the emulation check runs a "
+                    "continuous design through a hold, so go back to the continuous plant first"
+                )
+            T = core.check_sample_time_value(sample_time)
+            self._set_inputs(self.refresh.release(), emulation_sample_time=T)
+            self._say(f"Checking this K run by a sampled controller (ZOH, T = {T:g} s); the design is unchanged.",
+                      "note")
+            return True
+        return False
+
+    def stop_sampling_check(self) -> None:
+        """Hide the emulation check."""
+        if self.emulation_sample_time is not None:
+            with self._reporting("close the sampling check"):
+                self._set_inputs(self.refresh.release(), emulation_sample_time=None)
+
+    def sample_plant(self, sample_time: float | None = None, *, redesign: bool = False) -> bool:
+        """Continue the design on the z-plane: make the ZOH-sampled plant current (one undo step).
+
+        Parameters
+        ----------
+        sample_time : float, optional
+            T in seconds; default: the sample time of the emulation check shown.
+        redesign : bool
+            False: start from the sampled equivalent of K — for state feedback through a ZOH
+            that is the same K, so the loop is exactly the one the emulation check showed.
+            True: start over with the sampled plant's own starting gain (its LQR with Bryson's
+            weights).
+
+        Undo (or :meth:`restore_continuous`) goes back to the continuous design; the
+        pins, the gain history and the undo history are kept.
+        """
         with self._reporting("sample the plant"):
             if self.plant.is_sampled:
                 raise core.PlantError(
                     f"the plant is already sampled (T = {self.plant.sample_time:g} s); go back to continuous first"
                 )
-            sampled = core.discretize_zero_order_hold(self.plant, sample_time)
-            self._replace_plant(
-                sampled, f"{self.plant_label} (ZOH, T = {sample_time:g} s)", self.plant_text,
-                continuous_origin=self.plant, note=f"Sampled the plant with a zero-order hold, T = {sample_time:g} s.",
-            )
+            T = self.emulation_sample_time if sample_time is None else sample_time
+            if T is None:
+                raise core.AnalysisError("give a sample time T in seconds (or check the sampled loop first)")
+            T = core.check_sample_time_value(T)
+            shown = self.evaluation.emulation if self.evaluation is not None else None
+            sampled = (shown.sampled_plant if shown is not None and shown.sample_time == T
+                       and self.evaluation.plant is self.plant else core.discretize_zero_order_hold(self.plant, T))
+            if redesign:
+                gain, start_note = self._starting_gain(sampled)
+                words = f"Redesign on the z-plane (ZOH, T = {T:g} s), from the sampled plant's starting gain."
+            else:
+                gain, start_note = np.array(self.gain, copy=True), ""
+                words = (f"Continuing on the z-plane (ZOH, T = {T:g} s) from the sampled equivalent of K (the same "
+                         "K, held between samples).")
+            self._move_to_time_domain(
+                sampled, f"{self.plant_label} (ZOH, T = {T:g} s)", continuous_origin=self.plant, gain=gain,
+                note=" ".join(n for n in (words, "Undo goes back to the continuous design.", start_note) if n))
             return True
         return False
 
     def restore_continuous(self) -> bool:
-        """Go back to the continuous plant a sampled one was made from."""
+        """Go back to the continuous plant a sampled one was made from, with the current K (one undo step)."""
         origin = self.continuous_origin
         if origin is None:
             self._say("This plant was not sampled here, so there is no continuous version to go back to.", "error")
             return False
         with self._reporting("go back to the continuous plant"):
             label = self.plant_label.split(" (ZOH")[0]
-            self._replace_plant(origin, label, self.plant_text, note="Back to the continuous plant.")
+            self._move_to_time_domain(origin, label, continuous_origin=None, gain=np.array(self.gain, copy=True),
+                                      note="Back to the continuous plant with the current K (undo: back to the "
+                                           "z-plane).")
             return True
         return False
+
+    def _move_to_time_domain(self, plant: core.Plant, label: str, *, continuous_origin, gain, note: str) -> None:
+        """The same design on another plant (sampled or continuous), as one undo step; the rest is kept."""
+        self._drag = None
+        self.history.cancel_gesture()
+        before = self._point()
+        changes = dict(plant=plant, plant_label=label, continuous_origin=continuous_origin, gain=plant.check_gain(gain),
+                       emulation_sample_time=None)
+        if self.estimator is not None:
+            changes.update(estimator=None, editing="controller")  # an L fits one plant only; undo brings it back
+            note += " The estimator was set aside (it was designed for the other plant)."
+        self._set_inputs(self.refresh.release(), **changes)
+        self.history.accepted(before, self._point())
+        self._sync_history_depths()
+        self._after_time_domain_change()
+        self._say(note, "note")
+        self._commit()
+
+    def _after_time_domain_change(self) -> None:
+        """The plant changed its time domain with the design kept: what belongs to one plant starts anew."""
+        self._drag = None
+        self.gain_log.follow(self.plant)
+        self._reset_lqr_weights()
+        self.placement_summary = ""
 
     # -- the design as a whole: history, saving, loading ----------------------------------------
 

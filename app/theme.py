@@ -24,6 +24,7 @@ __all__ = [
     "trace_colour",
     "entry_symbol",
     "estimator_entry_symbol",
+    "pole_time_text",
 ]
 
 PALETTE = {
@@ -49,6 +50,7 @@ PALETTE = {
     "limit_band": "#efe6d2",
     "interval_stable": "#6fb58a",
     "interval_unstable": "#e3a59c",
+    "sampled_equivalent": "#1d4e89",
 }
 
 #: One colour per output or input trace, cycled when there are more.
@@ -69,6 +71,7 @@ MARKERS = {
     "estimator": {"marker": "diamond", "size": 15, "line_width": 2.0},
     "zero": {"marker": "circle", "size": 11, "line_width": 1.8},
     "fixed_frame": {"marker": "square", "size": 24, "line_width": 1.6},
+    "sampled_equivalent": {"marker": "circle_x", "size": 11, "line_width": 1.4},
 }
 
 #: The caution shown on every screen (and in the page title bar region).
@@ -167,3 +170,31 @@ table.gb-table td.num {{ text-align: right; font-family: ui-monospace, monospace
 .gb-note {{ font-size: 12px; color: {PALETTE['ink']}; line-height: 1.45; }}
 .gb-small {{ font-size: 11.5px; color: {PALETTE['muted']}; }}
 """
+
+
+def pole_time_text(description, digits: int = 4) -> str:
+    """How fast a pole's mode decays or grows: its time constant, or for an unstable pole its growth time.
+
+    The time constant −1/Re s is the time to decay by a factor e; a pole with Re s > 0 has
+    none, and shows instead the time to GROW by a factor e, 1/Re s (s: the pole, or ln(z)/T
+    for a sampled one), labelled so. A pole with Re s = 0 neither decays nor grows.
+
+    Examples
+    --------
+    >>> from types import SimpleNamespace as Pole
+    >>> pole_time_text(Pole(time_constant=0.5, equivalent_continuous=complex(-2, 0)))
+    '0.5'
+    >>> pole_time_text(Pole(time_constant=float("inf"), equivalent_continuous=complex(0.8, 3)))
+    'grows ×e in 1.25'
+    >>> pole_time_text(Pole(time_constant=float("inf"), equivalent_continuous=complex(0, 3)))
+    'neither decays nor grows'
+    """
+    import math
+
+    tau = float(description.time_constant)
+    if math.isfinite(tau):
+        return format_number(tau, digits)
+    growth = complex(description.equivalent_continuous).real
+    if growth > 0 and math.isfinite(growth):
+        return f"grows ×e in {format_number(1.0 / growth, digits)}"
+    return "neither decays nor grows"

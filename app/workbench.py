@@ -47,7 +47,8 @@ from .views.estimator_responses import EstimatorResponses
 from .views.estimator_sliders import EstimatorSliders
 from .views.file_panel import FilePanel
 from .views.gain_matrix import GainEntries
-from .views.keyboard import NudgeKeys, TabKeys
+from .views.keyboard import HistoryKeys, NudgeKeys, TabKeys
+from .views.loop_response import LoopResponse
 from .views.lqr_panel import LqrPanel
 from .views.page_header import PageHeader
 from .views.plant_panel import PlantPanel
@@ -67,10 +68,13 @@ _MAX_ARGUMENT_CHARACTERS = 20_000
 #: Autosave ids of the sessions open in this process: their files are not offered for restore.
 _LIVE_AUTOSAVES: set[str] = set()
 _LIVE_LOCK = threading.Lock()
-#: Height of the scrolling tab contents, so that the page fits a 768-pixel-high screen.
+#: Smallest height of the scrolling tab contents: the page fits a 768-pixel-high screen; a taller
+#: window gives the tabs its extra height (see Workbench._layout).
 TAB_HEIGHT = 590
-#: Height of the K readout and history buttons above the gain entries.
-GAIN_BAR_HEIGHT = 150
+#: Pixels above the tab contents (header, caution, message bar, tab headers), measured at 1440×900.
+HEADER_ALLOWANCE = 150
+#: Height of the K readout, history buttons and "gain entries" heading above the gain entries (measured).
+GAIN_BAR_HEIGHT = 162
 #: An evaluation still running after this many seconds is reported to the user.
 EVALUATION_BUDGET_SECONDS = 10.0
 
@@ -120,13 +124,14 @@ class Workbench:
 
         self.page_header = PageHeader(state, on_restore=self.restore_offered, on_discard=self.discard_offered)
         self.pole_map = PoleMap(state, self.scheduler)
-        self.entry_choice = EntryChoice(state, on_fit=self.pole_map.fit_view)
+        self.entry_choice = EntryChoice(state, on_fit=self.pole_map.fit_view, on_lock=self.pole_map.lock_view)
         self.gains = GainEntries(state, self.scheduler)
         self.sliders = self.gains.sliders  # one slider per entry (small K); the matrix is self.gains.matrix
         self.design_bar = DesignBar(state)
         self.responses = ResponsePlots(state)
         self.pole_table = PoleTable(state)
         self.checks = ChecksTable(state)
+        self.loop_response = LoopResponse(state)
         self.plant_panel = PlantPanel(state)
         self.lqr_panel = LqrPanel(state)
         self.edit_mode = EditMode(state)
@@ -148,6 +153,7 @@ class Workbench:
             "design_bar": self.design_bar.refresh,
             "pole_table": self.pole_table.refresh,
             "checks": self.checks.refresh,
+            "loop_response": self.loop_response.refresh,
             "plant_panel": self.plant_panel.refresh,
             "lqr_panel": self.lqr_panel.refresh,
             "edit_mode": self.edit_mode.refresh,
@@ -199,14 +205,19 @@ class Workbench:
     def _layout(self):
         label = lambda text: pn.pane.HTML(f'<div class="gb-heading">{text}</div>',  # noqa: E731
                                           stylesheets=[TABLE_CSS], margin=(2, 5, 0, 5))
-        # Each tab scrolls on its own, so long content never pushes the page past the screen.
-        scrolling = lambda content, width, height=TAB_HEIGHT: pn.Column(  # noqa: E731
-            content, height=height, width=width, scroll=True, margin=0)
+        # Each tab scrolls on its own, so long content never pushes the page past the screen: its
+        # height follows the window (the header above takes HEADER_ALLOWANCE pixels), never below
+        # the 768-pixel laptop layout's.
+        def scrolling(content, width, below_header: int = 0):
+            return pn.Column(content, width=width, scroll=True, margin=0,
+                             styles={"height": f"max({TAB_HEIGHT - below_header}px, "
+                                               f"calc(100vh - {HEADER_ALLOWANCE + below_header}px))"})
+
         # K, undo/redo and pinning stay in view while the list of entries scrolls.
         gains = pn.Column(
             self.design_bar.panel,
             label("gain entries"),
-            scrolling(self.gains.panel, 370, TAB_HEIGHT - GAIN_BAR_HEIGHT),
+            scrolling(self.gains.panel, 370, GAIN_BAR_HEIGHT),
             margin=0, width=370,
         )
         left = pn.Tabs(
@@ -229,16 +240,22 @@ class Workbench:
             ("Responses", scrolling(pn.Column(self.responses.panel, self.estimator_responses.panel, margin=0), 478)),
             ("Checks", scrolling(pn.Column(self.compensator_checks.panel, self.checks.panel, margin=0), 478)),
             ("Poles", scrolling(self.pole_table.panel, 478)),
+            ("Loop", scrolling(self.loop_response.panel, 478)),
             ("Robust", scrolling(self.robust_panel.panel, 478)),
             width=480, margin=(0, 5), dynamic=False,
         )
         nudges = NudgeKeys(on_nudge=self._nudge, on_end=self.state.end_gesture, width=0, height=0, margin=0)
+        history_keys = HistoryKeys(on_undo=lambda: self._guarded(self.state.undo),
+                                   on_redo=lambda: self._guarded(self.state.redo), width=0, height=0, margin=0)
         return pn.Column(
             TabKeys(width=0, height=0, margin=0),
             nudges,
+            history_keys,
             *self.page_header.panels,
-            pn.Row(left, centre, right, margin=0),
-            margin=0,
+            # a window narrower than the three columns (≤ 800 px, say) stacks them instead of shrinking them
+            pn.FlexBox(left, centre, right, flex_wrap="wrap", align_items="flex-start", margin=0,
+                       css_classes=["gb-columns"], sizing_mode="stretch_width"),
+            margin=0, sizing_mode="stretch_width",
             styles={"background": PALETTE["paper"]},
         )
 

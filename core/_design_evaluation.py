@@ -68,6 +68,9 @@ class EvaluationOptions:
         True while a gain or a pole is being dragged: view ranges are kept or only grow.
     reference_poles : tuple of complex
         More poles the pole-map frame must show (a pinned design, an LQR comparison).
+    emulation_sample_time : float, optional
+        For a continuous plant: also evaluate K run by a sampled controller with a ZOH at
+        this period (:func:`evaluate_emulation`, margins when ``include_margins``).
     """
 
     selected_entry: tuple[int, int] | None = (0, 0)
@@ -80,6 +83,7 @@ class EvaluationOptions:
     previous_view: ViewRanges | None = None
     gesture: bool = False
     reference_poles: tuple = ()
+    emulation_sample_time: float | None = None
 
 
 @dataclass(frozen=True, eq=False)
@@ -120,6 +124,11 @@ class DesignEvaluation:
         Warnings for the user (conditioning, divergence, steps that cannot be computed).
     view_ranges : ViewRanges or None
         Slider ranges, the pole-map frame with the spec region, response axes (see :func:`view_ranges`).
+    emulation : EmulationCheck or None
+        K run through a ZOH at ``options.emulation_sample_time`` (None when not asked for).
+    loop_frequency : LoopFrequencyResponse or None
+        Each input's loop and the input sensitivity over frequency, with where the margins are
+        read (computed with the margins; None without them).
     """
 
     plant: Plant
@@ -140,6 +149,8 @@ class DesignEvaluation:
     closed_loop_movable: tuple[bool, ...] = field(default=())
     messages: tuple[str, ...] = field(default=())
     view_ranges: ViewRanges | None = None
+    emulation: object | None = None
+    loop_frequency: object | None = None
 
 
 # Results that depend on the plant alone (structure, open-loop poles), kept while the
@@ -257,6 +268,24 @@ def evaluate_design(plant: Plant, gain, options: EvaluationOptions | None = None
         except GainboardError as error:  # margins are advisory; the rest of the evaluation still stands
             messages.append(f"Loop margins not computed: {error}")
 
+    loop_frequency = None
+    if options.include_margins:
+        from ._loop_frequency import loop_frequency_response
+
+        try:
+            loop_frequency = loop_frequency_response(plant, K, margins)
+        except GainboardError as error:  # a view of the margins; the rest of the evaluation still stands
+            messages.append(f"Loop frequency response not computed: {error}")
+
+    emulation = None
+    if options.emulation_sample_time is not None and not plant.is_sampled:
+        from ._emulation import evaluate_emulation  # it evaluates the sampled loop with evaluate_design
+
+        # over the same time as the continuous responses, so that the two can be drawn together
+        emulation = evaluate_emulation(plant, K, options.emulation_sample_time,
+                                       include_margins=options.include_margins, specs=specs,
+                                       horizon=responses.horizon, initial_state=options.initial_state)
+
     spec_report = region = None
     if specs is not None:
         spec_report = check_specs(specs, closed_loop.poles, responses, margins, plant.sample_time,
@@ -286,6 +315,8 @@ def evaluate_design(plant: Plant, gain, options: EvaluationOptions | None = None
             sensitivity=sensitivity, pole_region=region, responses=responses, reference_poles=options.reference_poles,
             previous=options.previous_view, gesture=options.gesture, entry_intervals=intervals,
         ),
+        emulation=emulation,
+        loop_frequency=loop_frequency,
     )
 
 

@@ -24,6 +24,8 @@ __all__ = [
 ]
 
 NAN = float("nan")
+#: Excesses over a limit smaller than this times the size of the data are round-off (see find_limit_violation).
+_LIMIT_ROUND_OFF = 1e3 * np.finfo(float).eps
 
 #: A change smaller than this fraction of an output's largest excursion counts as
 #: "starts and ends at the same value" (rounding noise of the steady-state solve).
@@ -723,6 +725,13 @@ def find_limit_violation(time, values, slopes, *, low: float, high: float, index
     above = values - high
     below = low - values
     excess = np.maximum(np.maximum(above, below), 0.0)
+    # A demand that equals its limit up to round-off is at the limit, not beyond it: the
+    # simulated values carry relative errors of a few eps (a step whose exact peak is the
+    # limit came out 2.25e-15 above it), so excesses below 1e3·eps of the data's size count as 0.
+    finite = values[np.isfinite(values)]
+    scale = max(abs(low) if math.isfinite(low) else 0.0, abs(high) if math.isfinite(high) else 0.0,
+                float(np.max(np.abs(finite))) if finite.size else 0.0)
+    excess = np.where(excess > _LIMIT_ROUND_OFF * scale, excess, 0.0)
     outside = excess > 0.0
     k = int(outside.argmax())
     if not outside[k]:

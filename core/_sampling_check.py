@@ -75,6 +75,10 @@ class SamplingCheck:
     note : str
         Plain-language verdict, the common-practice sampling advice and the
         validation caution.
+    searched_up_to : float or None
+        The largest sample time the search for a loss of stability looked at, in
+        seconds (the bound behind ``largest_stable_sample_time = inf``); None when
+        the continuous design is unstable and nothing was searched.
     """
 
     sample_time: float
@@ -87,6 +91,7 @@ class SamplingCheck:
     sampling_ratio: float
     largest_stable_sample_time: float | None
     note: str
+    searched_up_to: float | None = None
 
 
 def _sort_key(poles: np.ndarray) -> np.ndarray:
@@ -267,4 +272,5 @@ def check_sampled_implementation(plant: Plant, K, sample_time: float) -> Samplin
         sampling_ratio=float(ratio),
         largest_stable_sample_time=None if largest is None else float(largest),
         note=" ".join(notes),
+        searched_up_to=None if limit is None else float(limit),
     )

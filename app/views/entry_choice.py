@@ -19,17 +19,27 @@ class EntryChoice:
         Called by the "Fit view" button.
     """
 
-    def __init__(self, state, *, on_fit):
+    def __init__(self, state, *, on_fit, on_lock=None):
         self.state = state
-        self.choice = pn.widgets.Select(label="", options={}, width=290, margin=(2, 5),
+        self.choice = pn.widgets.Select(label="", options={}, width=235, margin=(2, 5),
                                         description="Entry whose locus and arrows are drawn")
         self.choice.param.watch(self._chosen, "value")
-        self.fit_button = pn.widgets.Button(label="Fit view", width=80, margin=(2, 5))
+        # The pole map's ranges follow the content by the rule stated under the map; locked, they stay
+        # where the user put them until "Fit view" (a change of plant or time domain still fits).
+        self.fit_button = pn.widgets.Button(
+            label="Fit view", width=72, margin=(2, 3),
+            description="Frame the poles, the spec region and the locus now. Unlocked, the map refits by itself "
+                        "when a pole comes within 5 % of an edge or everything fills less than 30 % of it (never "
+                        "during a drag; after you zoom or pan, only a pole leaving the view refits)")
         self.fit_button.on_click(lambda event: on_fit())
+        self.lock_toggle = pn.widgets.Toggle(label="Lock view", value=False, width=80, margin=(2, 3),
+                                             css_classes=["gb-lock-view"])
+        if on_lock is not None:
+            self.lock_toggle.param.watch(lambda event: on_lock(bool(event.new)), "value")
         self._syncing = False
         self.panel = pn.Row(pn.pane.HTML('<div class="gb-small" style="padding-top:6px">locus of</div>',
                                          stylesheets=[TABLE_CSS], margin=(2, 0, 2, 5)),
-                            self.choice, self.fit_button, margin=0)
+                            self.choice, self.fit_button, self.lock_toggle, margin=0)
 
     def refresh(self, evaluation) -> None:
         plant = evaluation.plant

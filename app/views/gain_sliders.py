@@ -59,8 +59,7 @@ def _interval_text(symbol: str, intervals, scale: float = 0.0) -> str:
     if not intervals.entry_has_effect:
         return f"{symbol} moves no pole"
     if not intervals.intervals:
-        reason = intervals.never_stable_reason or "no value is stable with the other entries fixed"
-        return f"never stable: {reason}"
+        return f"never stable: {_never_stable_text(symbol, intervals, number)}"
     parts = []
     for low, high in intervals.intervals:
         if math.isinf(low) and math.isinf(high):
@@ -72,6 +71,34 @@ def _interval_text(symbol: str, intervals, scale: float = 0.0) -> str:
         else:
             parts.append(f"{number(low)} &lt; {symbol} &lt; {number(high)}")
     return "stable for " + " or ".join(parts)
+
+
+def _never_stable_text(symbol: str, intervals, number) -> str:
+    """Why no value of the entry is stable, named as on screen (k₁₁, counted from 1), round-off printed as 0.
+
+    Built from the core's pieces of the real line (each with its count of poles on or past the
+    boundary) rather than from the core's sentence, which names entries from 0.
+    """
+    if not hasattr(intervals, "pieces"):  # the range common to every model of a family has no pieces of its own
+        return escape(intervals.never_stable_reason or "no value is stable for every model")
+    pieces = [piece for piece in intervals.pieces if piece[2] > 0]
+    if intervals.fixed_poles and not pieces:
+        return escape(intervals.never_stable_reason or "a pole this entry cannot move is unstable")
+    if not pieces:
+        return "no value is stable with the other entries fixed; change another entry first"
+    fewest = min(count for _, _, count in pieces)
+    low, high = next((a, b) for a, b, count in pieces if count == fewest)
+    where = "on or outside the unit circle" if intervals.sampled else "on or right of the imaginary axis"
+    if math.isinf(low) and math.isinf(high):
+        span = "for every value"
+    elif math.isinf(low):
+        span = f"fewest for {symbol} &lt; {number(high)}"
+    elif math.isinf(high):
+        span = f"fewest for {symbol} &gt; {number(low)}"
+    else:
+        span = f"fewest for {number(low)} &lt; {symbol} &lt; {number(high)}"
+    return (f"no value of {symbol} makes every pole stable: at least {fewest} pole(s) stay {where} ({span}); "
+            "change another entry first")
 
 
 def interval_strip_svg(low: float, high: float, value: float, intervals, width: int = SLIDER_WIDTH) -> str:

@@ -93,6 +93,8 @@ class HtmlBox:
         Style sheet for the box's own shadow root.
     width, height : int, optional
         Size in pixels; without a height the box grows with its text.
+    max_width : int, optional
+        Instead of a fixed width: fill the container's width, up to this many pixels.
     css_classes : sequence of str
         Classes on the box's element (tests locate boxes by them).
     name : str, optional
@@ -102,9 +104,11 @@ class HtmlBox:
     """
 
     def __init__(self, *, css: str = "", width: int | None = None, height: int | None = None,
-                 css_classes=(), name: str | None = None, margin=(0, 5)):
+                 css_classes=(), name: str | None = None, margin=(0, 5), max_width: int | None = None):
         options = {"width": width, "margin": margin, "css_classes": list(css_classes),
                    "stylesheets": [css] if css else []}
+        if max_width is not None:  # as wide as its container allows, up to max_width
+            options.update(width=None, max_width=max_width, sizing_mode="stretch_width")
         if height is not None:
             options["height"] = height
         if name is not None:

@@ -10,7 +10,7 @@ from __future__ import annotations
 
 from panel.custom import JSComponent
 
-__all__ = ["TabKeys", "NudgeKeys"]
+__all__ = ["TabKeys", "NudgeKeys", "HistoryKeys"]
 
 
 class TabKeys(JSComponent):
@@ -125,3 +125,52 @@ export function render({ model, el }) {
             return  # not a message this component sends
         if steps in (-1, 1) and row >= 0 and col >= 0:
             self._on_nudge(row, col, steps, bool(msg.get("coarse")))
+
+
+class HistoryKeys(JSComponent):
+    """Ctrl+Z undoes, Ctrl+Shift+Z or Ctrl+Y redoes (⌘ on a Mac) — unless the focus is in a text field.
+
+    In a text box or number box the keys keep their own meaning (undoing typing), so the
+    design is never changed from under a field being edited. Sends ``{"history": "undo"}``
+    or ``{"history": "redo"}``.
+
+    Parameters
+    ----------
+    on_undo, on_redo : callable
+        What the keys do.
+    """
+
+    _esm = """
+function inTextField(event) {
+  for (const element of event.composedPath()) {
+    if (!element.tagName) continue;
+    const tag = element.tagName.toLowerCase();
+    if (tag === 'textarea' || tag === 'select' || element.isContentEditable) return true;
+    if (tag === 'input' && !['button', 'checkbox', 'radio', 'range', 'submit'].includes(element.type)) return true;
+  }
+  return false;
+}
+
+export function render({ model, el }) {
+  const onKeyDown = (event) => {
+    if (!(event.ctrlKey || event.metaKey) || event.altKey) return;
+    const key = event.key.toLowerCase();
+    const action = key === 'z' ? (event.shiftKey ? 'redo' : 'undo') : (key === 'y' && !event.shiftKey ? 'redo' : null);
+    if (!action || inTextField(event)) return;
+    event.preventDefault();
+    model.send_msg({history: action});
+  };
+  document.addEventListener('keydown', onKeyDown, true);
+  model.on('remove', () => document.removeEventListener('keydown', onKeyDown, true));
+  el.style.display = 'none';
+}
+"""
+
+    def __init__(self, *, on_undo, on_redo, **params):
+        super().__init__(**params)
+        self._actions = {"undo": on_undo, "redo": on_redo}
+
+    def _handle_msg(self, msg) -> None:
+        action = self._actions.get(msg.get("history")) if isinstance(msg, dict) else None
+        if action is not None:
+            action()

@@ -55,6 +55,7 @@ class LqrPanel:
         self.bryson_button = pn.widgets.Button(label="Bryson weights", width=120, margin=(4, 5))
         self.adopt_button = pn.widgets.Button(label="Adopt LQR gain", color="success", width=130, margin=(4, 5))
         self.result = HtmlBox(css=TABLE_CSS, width=WIDTH - 10, margin=(2, 5))
+        self._shown_weights = (None, None)  # the texts last written from the state's weights
         self.compute_button.on_click(lambda event: self._compute())
         self.bryson_button.on_click(lambda event: self._bryson())
         self.adopt_button.on_click(lambda event: self.state.adopt_lqr())
@@ -75,6 +76,10 @@ class LqrPanel:
 
     def _compute(self) -> None:
         plant = self.state.plant
+        if (self.q_input.value, self.r_input.value) == self._shown_weights and self.state.lqr_weights is not None:
+            # the boxes show the state's weights rounded for reading: use them at full precision
+            self.state.compute_lqr()
+            return
         try:
             q = parse_weight_list(self.q_input.value, plant.state_count, "Q diagonal")
             r = parse_weight_list(self.r_input.value, plant.input_count, "R diagonal")
@@ -91,10 +96,13 @@ class LqrPanel:
         weights = self.state.lqr_weights
         if weights is None:
             self.q_input.value, self.r_input.value = "", ""
+            self._shown_weights = (None, None)
             return
         Q, R = weights
+        # shown to 6 digits; "Compute LQR" on unedited boxes uses the weights themselves
         self.q_input.value = ", ".join(f"{v:.6g}" for v in np.diag(Q))
         self.r_input.value = ", ".join(f"{v:.6g}" for v in np.diag(R))
+        self._shown_weights = (self.q_input.value, self.r_input.value)
 
     def refresh_result(self) -> None:
         result = self.state.lqr_result

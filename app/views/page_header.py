@@ -37,6 +37,7 @@ HEADER_CSS = f"""
 .gb-room {{ font-size: 12.5px; color: {PALETTE['ink']}; background: #e6f0f5; border-radius: 3px; padding: 1px 8px;
   overflow: hidden; text-overflow: ellipsis; }}
 .gb-room b {{ color: {PALETTE['accent']}; }}
+@media (max-width: 800px) {{ .gb-plant-summary {{ display: none; }} }}  /* narrow: title, plant and status */
 """
 
 
@@ -52,26 +53,31 @@ class PageHeader:
 
     def __init__(self, state, *, on_restore, on_discard):
         self.state = state
-        self.header = HtmlBox(css=HEADER_CSS, width=PAGE_WIDTH, height=30, margin=(6, 10, 0, 10), name="header")
+        # The header lines fill the window's width (up to the three columns' width), so that a
+        # narrow window wraps their text instead of cutting it off.
+        self.header = HtmlBox(css=HEADER_CSS, max_width=PAGE_WIDTH, height=30, margin=(6, 10, 0, 10), name="header")
         self.caution = pn.pane.HTML(
             f'<div class="gb-caution" role="note"><b>Caution:</b> {escape(SAFETY_CAUTION)}</div>',
-            width=PAGE_WIDTH, margin=(2, 10), stylesheets=[HEADER_CSS], name="caution",
+            max_width=PAGE_WIDTH, sizing_mode="stretch_width", margin=(2, 10), stylesheets=[HEADER_CSS],
+            name="caution",
         )
         # The message slot keeps its height when empty so nothing moves under a dragging mouse.
-        self.message = HtmlBox(css=HEADER_CSS, width=PAGE_WIDTH - 90, height=MESSAGE_HEIGHT, margin=(2, 0, 2, 10),
-                               name="message")
+        self.message = HtmlBox(css=HEADER_CSS, max_width=PAGE_WIDTH - 90, height=MESSAGE_HEIGHT,
+                               margin=(2, 0, 2, 10), name="message")
         self.dismiss = pn.widgets.Button(label="Dismiss", width=75, margin=(2, 5), color="light", visible=False)
         self.dismiss.on_click(lambda event: state.clear_message())
-        self.message_row = pn.Row(self.message.panel, self.dismiss, margin=0, height=MESSAGE_HEIGHT + 4)
+        self.message_row = pn.Row(self.message.panel, self.dismiss, margin=0, height=MESSAGE_HEIGHT + 4,
+                                  sizing_mode="stretch_width", max_width=PAGE_WIDTH + 20)
         # The offer to restore an autosaved design: shown at start only, above everything that moves.
-        self.offer = HtmlBox(css=HEADER_CSS, width=PAGE_WIDTH - 260, height=MESSAGE_HEIGHT, margin=(2, 0, 2, 10),
-                             name="restore_offer")
+        self.offer = HtmlBox(css=HEADER_CSS, max_width=PAGE_WIDTH - 260, height=MESSAGE_HEIGHT,
+                             margin=(2, 0, 2, 10), name="restore_offer")
         self.restore_button = pn.widgets.Button(label="Restore it", color="success", width=95, margin=(2, 5))
         self.discard_button = pn.widgets.Button(label="Discard it", width=90, margin=(2, 5))
         self.restore_button.on_click(lambda event: on_restore())
         self.discard_button.on_click(lambda event: on_discard())
         self.offer_row = pn.Row(self.offer.panel, self.restore_button, self.discard_button, margin=0,
-                                height=MESSAGE_HEIGHT + 4, visible=False)
+                                height=MESSAGE_HEIGHT + 4, visible=False, sizing_mode="stretch_width",
+                                max_width=PAGE_WIDTH + 20)
         self.panels = [self.header.panel, self.caution, self.offer_row, self.message_row]
 
     def refresh(self, evaluation, room_html: str = "") -> None:

@@ -10,6 +10,7 @@ import panel as pn
 from ..plant_catalogue import bundled_plant_catalogue
 from ..theme import TABLE_CSS, format_complex, format_number
 from .html_box import HtmlBox
+from .sampling_check import SamplingCheckPanel
 
 __all__ = ["PlantPanel"]
 
@@ -40,10 +41,7 @@ class PlantPanel:
             stylesheets=[":host textarea { font-family: ui-monospace, monospace; font-size: 12px; }"],
         )
         self.apply_button = pn.widgets.Button(label="Apply edits", color="primary", width=110, margin=(2, 5))
-        self.sample_time = pn.widgets.FloatInput(label="Sample time T (s)", value=0.01, start=0.0, width=120,
-                                                 margin=(2, 5))
-        self.sample_button = pn.widgets.Button(label="Sample with ZOH", width=130, margin=(20, 5, 2, 5))
-        self.continuous_button = pn.widgets.Button(label="Back to continuous", width=150, margin=(2, 5))
+        self.sampling = SamplingCheckPanel(state)
         self.structure = HtmlBox(css=TABLE_CSS, width=WIDTH - 10, margin=(2, 5))
         self.description = HtmlBox(css=TABLE_CSS, width=WIDTH - 10, margin=(2, 5))
 
@@ -51,8 +49,6 @@ class PlantPanel:
         self.bundled.param.watch(lambda event: self._show_bundled_summary(), "value")
         self.file_input.param.watch(self._file_chosen, "value")
         self.apply_button.on_click(lambda event: self.state.load_plant_text(self.editor.value, "edited plant"))
-        self.sample_button.on_click(lambda event: self.state.sample_plant(float(self.sample_time.value or 0.0)))
-        self.continuous_button.on_click(lambda event: self.state.restore_continuous())
 
         heading = lambda text: pn.pane.HTML(f'<div class="gb-heading">{text}</div>',  # noqa: E731
                                             stylesheets=[TABLE_CSS], margin=(4, 5, 0, 5))
@@ -66,8 +62,7 @@ class PlantPanel:
             heading("structure"),
             self.structure.panel,
             heading("time base"),
-            pn.Row(self.sample_time, self.sample_button, margin=0),
-            self.continuous_button,
+            self.sampling.panel,
             heading("edit in place"),
             self.editor,
             self.apply_button,
@@ -100,12 +95,9 @@ class PlantPanel:
             self.editor.value = self.state.plant_text
         self.structure.object = structure_summary_html(evaluation)
         plant = evaluation.plant
-        self.continuous_button.disabled = self.state.continuous_origin is None
-        self.sample_button.disabled = plant.is_sampled
+        self.sampling.refresh(evaluation)
         text = escape(plant.description or plant.summary or "No description in the plant file.")
         self.description.object = f'<div class="gb-note" style="white-space: pre-wrap;">{text}</div>'
-        if plant.is_sampled:
-            self.sample_time.value = plant.sample_time
 
 
 def structure_summary_html(evaluation) -> str:

@@ -39,14 +39,23 @@ from bokeh.models import (
 from bokeh.plotting import figure
 
 from ..scheduling import guarded
-from ..theme import LOCUS_RAMP, MARKERS, PALETTE, entry_symbol, estimator_entry_symbol, format_complex, format_number
+from ..theme import (
+    LOCUS_RAMP,
+    MARKERS,
+    PALETTE,
+    entry_symbol,
+    estimator_entry_symbol,
+    format_complex,
+    format_number,
+    pole_time_text,
+)
 from .data_sources import update_source
 from .html_box import HtmlBox
 
 __all__ = ["PoleMap"]
 
 FRAME_WIDTH = 395
-FRAME_HEIGHT = 375
+FRAME_HEIGHT = 355
 #: A press within this many pixels of a closed-loop pole starts dragging it.
 PICK_RADIUS_PX = 16
 #: Drops this many pixels from the real axis land on it.
@@ -78,6 +87,7 @@ class PoleMap:
         self._setting_poles = False
         self._drag = None
         self._view = None  # (x0, x1, y0, y1) as last fitted
+        self.locked = False  # True: the ranges stay until "Fit view" or a change of plant
         self._plant = None
         self._shown_poles: list[complex] = []
 
@@ -91,6 +101,8 @@ class PoleMap:
         self.pinned_source = ColumnDataSource({"x": [], "y": []}, name="pinned_poles")
         self.lqr_source = ColumnDataSource({"x": [], "y": []}, name="lqr_poles")
         self.fixed_source = ColumnDataSource({"x": [], "y": []})
+        #: ln(z)/T of the emulation check's sampled loop, on the s-plane beside the designed poles.
+        self.sampled_equivalent_source = ColumnDataSource({"x": [], "y": []}, name="sampled_equivalent_poles")
         self.closed_source = ColumnDataSource(
             {"x": [], "y": [], "label": [], "zeta": [], "wn": [], "tau": [], "movable": []}, name="closed_loop_poles"
         )
@@ -161,6 +173,8 @@ class PoleMap:
         fig.scatter("x", "y", source=self.lqr_source, color=PALETTE["lqr"], **MARKERS["lqr"])
         fig.scatter("x", "y", source=self.fixed_source, fill_alpha=0, line_color=PALETTE["fixed_frame"],
                     **MARKERS["fixed_frame"])
+        fig.scatter("x", "y", source=self.sampled_equivalent_source, fill_alpha=0,
+                    line_color=PALETTE["sampled_equivalent"], **MARKERS["sampled_equivalent"])
         self.closed_renderer = fig.scatter("x", "y", source=self.closed_source, color=PALETTE["closed_loop"],
                                            **MARKERS["closed_loop"])
         self.closed_renderer.selection_glyph = None
@@ -177,7 +191,7 @@ class PoleMap:
         hover = HoverTool(
             renderers=[self.closed_renderer, self.estimator_renderer],
             tooltips=[("pole", "@label"), ("damping ratio", "@zeta"), ("natural frequency", "@wn"),
-                      ("time constant", "@tau"), ("", "@movable")],
+                      ("time constant (unstable: growth time)", "@tau"), ("", "@movable")],
             description="Pole details",
         )
         wheel = WheelZoomTool(description="Zoom with the mouse wheel")
@@ -197,11 +211,13 @@ class PoleMap:
             self._plant = plant
             self._configure_plane(sampled)
             self._fit(evaluation)
-        elif not self.state.gesture_active and self._view_needs_fit(evaluation):
+        elif not self.locked and not self.state.gesture_active and self._view_needs_fit(evaluation):
             self._fit(evaluation)
 
         x, y = _xy(evaluation.open_loop.poles)
         update_source(self.open_source, {"x": x, "y": y})
+        x, y = _xy(_sampled_equivalents(evaluation))
+        update_source(self.sampled_equivalent_source, {"x": x, "y": y})
         self._refresh_region(evaluation)
         self._refresh_locus(evaluation)
         self._refresh_arrows(evaluation)
@@ -371,16 +387,26 @@ class PoleMap:
         ]
         if self.state.estimator_evaluation is not None:
             keys.insert(1, (PALETTE["estimator"], "◆", "estimator poles" + (" (drag)" if editing_estimator else "")))
-        if self.state.pinned is not None:
-            keys.append((PALETTE["pinned"], "×", "pinned"))
+        pinned = self.state.pinned
+        if pinned is not None:
+            # a pin made on the other time domain is kept, but its poles live on the other plane
+            keys.append((PALETTE["pinned"], "×", "pinned" if pinned.plant is evaluation.plant
+                         else "pinned (on another plant: not drawn here)"))
         if self.state.lqr_poles is not None:
             keys.append((PALETTE["lqr"], "×", "LQR"))
+        if evaluation.emulation is not None:
+            keys.append((PALETTE["sampled_equivalent"], "⊗",
+                         f"sampled at T = {format_number(evaluation.emulation.sample_time)} s, as ln(z)/T"))
         if any(not m for m in self.state.closed_loop_movable()):
             keys.append((PALETTE["fixed_frame"], "□", "cannot move"))
         keys.append((PALETTE["spec_region"], "■", "spec region"))
         keys.append((PALETTE["unstable_region"], "■", "unstable"))
         key_html = " ".join(f'<span class="key" style="color:{colour}">{mark}</span>{text}' for colour, mark, text in keys)
         rows.append(key_html)
+        rows.append('<span class="gb-view-rule">' + (
+            "view locked: only “Fit view” or another plant reframes it" if self.locked else
+            f"view follows the poles: refits if one nears an edge ({EDGE_FRACTION:.0%}) or all fill under "
+            f"{SHRUNK_FRACTION:.0%}") + "</span>")
         self.legend.object = "<div class='gb-map-legend'>" + "<br>".join(rows) + "</div>"
 
     # -- view extent --------------------------------------------------------------------------
@@ -394,6 +420,14 @@ class PoleMap:
         self._view = (x0, x1, y0, y1)
         self.figure.x_range.update(start=x0, end=x1, reset_start=x0, reset_end=x1)
         self.figure.y_range.update(start=y0, end=y1, reset_start=y0, reset_end=y1)
+
+    def lock_view(self, locked: bool) -> None:
+        """Keep the ranges where they are (``locked``) or let them follow the content again (fitting now)."""
+        self.locked = bool(locked)
+        if not self.locked and self.state.evaluation is not None and self._view_needs_fit(self.state.evaluation):
+            self.fit_view()
+        if self.state.evaluation is not None:
+            self._refresh_legend(self.state.evaluation)
 
     def fit_view(self) -> None:
         """Frame the current design again (the "Fit view" button)."""
@@ -503,6 +537,15 @@ class PoleMap:
             self._finish(self._pointer_target(event))
 
 
+def _sampled_equivalents(evaluation) -> np.ndarray:
+    """The emulation check's sampled poles as s = ln(z)/T (finite ones; none without a check)."""
+    emulation = evaluation.emulation
+    if emulation is None or evaluation.plant.is_sampled:
+        return np.zeros(0, complex)
+    poles = np.asarray(emulation.check.equivalent_continuous_poles, complex)
+    return poles[np.isfinite(poles)]
+
+
 def _hover_rows(descriptions, movable, prefix: str, can_move: str, cannot_move: str) -> dict:
     """The hover texts of a set of pole markers (label, damping, frequency, time constant, whether it moves)."""
     rows = {"label": [], "zeta": [], "wn": [], "tau": [], "movable": []}
@@ -510,7 +553,7 @@ def _hover_rows(descriptions, movable, prefix: str, can_move: str, cannot_move: 
         rows["label"].append(prefix + format_complex(description.value))
         rows["zeta"].append(format_number(description.damping_ratio, 3))
         rows["wn"].append(format_number(description.natural_frequency, 4) + " rad/s")
-        rows["tau"].append(format_number(description.time_constant, 4) + " s")
+        rows["tau"].append(pole_time_text(description) + " s")
         rows["movable"].append(can_move if moves else cannot_move)
     return rows
 

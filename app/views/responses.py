@@ -19,7 +19,7 @@ from ..theme import PALETTE, format_number, trace_colour
 from .data_sources import update_source
 from .html_box import HtmlBox
 
-__all__ = ["ResponsePlots", "RESPONSE_KINDS"]
+__all__ = ["ResponsePlots", "RESPONSE_KINDS", "style_plot"]
 
 #: Button label → attribute of the core's ResponseSet.
 RESPONSE_KINDS = {"Initial condition": "initial", "Reference step": "step", "Disturbance": "disturbance"}
@@ -30,12 +30,14 @@ DESCRIPTION_HEIGHT = 52
 
 
 #: Line styles: (colour, dash, alpha, width) of a trace.
-LINEAR, SATURATED, GHOST = "linear", "saturated", "ghost"
+LINEAR, SATURATED, GHOST, SAMPLED = "linear", "saturated", "ghost", "sampled"
 
 
 def _style(kind: str, index: int) -> tuple:
     if kind == GHOST:
         return (PALETTE["pinned"], "solid", 0.45, 1.6)
+    if kind == SAMPLED:
+        return (trace_colour(index), "dotdash", 0.85, 1.7)
     return (trace_colour(index), "solid" if kind == LINEAR else "dashed", 1.0 if kind == LINEAR else 0.95, 2.0)
 
 
@@ -48,9 +50,11 @@ class TraceSet:
     its own copy (a twelfth of the bytes of a 12-state step per copy).
     """
 
-    def __init__(self, figure, *, level: str = "glyph", name: str | None = None):
+    def __init__(self, figure, *, level: str = "glyph", name: str | None = None, held: bool = False):
         self.figure = figure
         self.level = level
+        #: Drawn as a staircase held from each sample to the next (an input through a ZOH).
+        self.held = held
         self.source = ColumnDataSource({"t": np.zeros(0, dtype=np.float32)}, name=name)
         self.renderers: list = []
         self.styles: tuple = ()
@@ -76,9 +80,11 @@ class TraceSet:
     def _rebuild(self, styles, data) -> None:
         self.figure.renderers = [r for r in self.figure.renderers if r not in self.renderers]
         self.source.data = data
+        draw = (lambda *args, **kwargs: self.figure.step(*args, mode="after", **kwargs)) if self.held \
+            else self.figure.line
         self.renderers = [
-            self.figure.line("t", f"y{k}", source=self.source, line_color=colour, line_dash=dash, line_alpha=alpha,
-                             line_width=width, level=self.level)
+            draw("t", f"y{k}", source=self.source, line_color=colour, line_dash=dash, line_alpha=alpha,
+                 line_width=width, level=self.level)
             for k, (colour, dash, alpha, width) in enumerate(styles)
         ]
         self.styles = styles
@@ -90,7 +96,7 @@ def _response_of(evaluation, kind: str):
     return getattr(evaluation.responses, kind)
 
 
-def _traces(response, which: str, saturated_which: str | None, *, ghost: bool = False):
+def _traces(response, which: str, saturated_which: str | None, *, kind: str = LINEAR):
     """(time, [(values, style), ...]) of one response's outputs or inputs (none when it is None)."""
     if response is None:
         return np.zeros(0), []
@@ -98,10 +104,34 @@ def _traces(response, which: str, saturated_which: str | None, *, ghost: bool = 
     saturated = getattr(response, saturated_which) if saturated_which is not None else None
     traces = []
     for k in range(linear.shape[1] if linear.ndim == 2 else 0):
-        traces.append((linear[:, k], _style(GHOST if ghost else LINEAR, k)))
+        traces.append((linear[:, k], _style(kind, k)))
         if saturated is not None:
             traces.append((np.asarray(saturated, dtype=float)[:, k], _style(SATURATED, k)))
     return response.time, traces
+
+
+def style_plot(fig, title: str, x_label: str | None = None, y_label: str | None = None) -> None:
+    """The look of the workbench's plots (responses, loop frequency response): muted title, axes and grid."""
+    fig.title.text = title
+    fig.title.text_color = PALETTE["muted"]
+    fig.title.text_font_style = "normal"
+    fig.title.text_font_size = "12px"
+    fig.grid.grid_line_color = "#ece8de"
+    fig.axis.major_label_text_color = PALETTE["muted"]
+    fig.axis.axis_line_color = PALETTE["rule"]
+    fig.xaxis.axis_label = x_label
+    if y_label is not None:
+        fig.yaxis.axis_label = y_label
+    fig.axis.axis_label_text_font_style = "normal"
+    fig.axis.axis_label_text_color = PALETTE["muted"]
+    fig.toolbar.logo = None
+    fig.min_border_left = 55
+
+
+def _emulated(evaluation):
+    """The sampled loop of the emulation check (a DesignEvaluation), or None."""
+    emulation = getattr(evaluation, "emulation", None)
+    return emulation.sampled if emulation is not None else None
 
 
 def _axes_of(evaluation, kind: str):
@@ -144,6 +174,9 @@ class ResponsePlots:
         self.input_traces = TraceSet(self.input_figure)
         self.output_ghosts = TraceSet(self.output_figure, level="underlay")
         self.input_ghosts = TraceSet(self.input_figure, level="underlay")
+        # The emulation check's sampled loop (the continuous K through a ZOH), over the design's traces.
+        self.output_sampled = TraceSet(self.output_figure, name="response_sampled_outputs")
+        self.input_sampled = TraceSet(self.input_figure, held=True)
         self.legend = HtmlBox(css=_css(), width=PLOT_WIDTH + 40)
         # Fixed height (three lines, then a scroll bar): limit warnings come and go while a
         # slider moves, and a box that changes height makes the browser lay out the page again.
@@ -167,18 +200,7 @@ class ResponsePlots:
             toolbar_location=None, name=name, background_fill_color="#fdfcf9",
             border_fill_color=PALETTE["paper"], outline_line_color=PALETTE["rule"],
         )
-        fig.title.text = title
-        fig.title.text_color = PALETTE["muted"]
-        fig.title.text_font_style = "normal"
-        fig.title.text_font_size = "12px"
-        fig.grid.grid_line_color = "#ece8de"
-        fig.axis.major_label_text_color = PALETTE["muted"]
-        fig.axis.axis_line_color = PALETTE["rule"]
-        fig.xaxis.axis_label = "time (s)" if what == "input" else None
-        fig.axis.axis_label_text_font_style = "normal"
-        fig.axis.axis_label_text_color = PALETTE["muted"]
-        fig.toolbar.logo = None
-        fig.min_border_left = 55
+        style_plot(fig, title, "time (s)" if what == "input" else None)
         return fig
 
     @property
@@ -199,6 +221,8 @@ class ResponsePlots:
         axes = _axes_of(evaluation, kind)
         if axes is not None:
             axes = axes.joined(_axes_of(pinned, kind))
+            if evaluation.emulation is not None and evaluation.emulation.stable:  # a blow-up would flatten the rest
+                axes = axes.joined(_axes_of(_emulated(evaluation), kind))
         end_time = axes.time_end if axes is not None else 1.0
         if response is not None:
             if plant.input_limits is not None:
@@ -214,8 +238,11 @@ class ResponsePlots:
             _set_range(self.input_figure.y_range, *axes.inputs)
         self.output_traces.show(*_traces(response, "outputs", "saturated_outputs"))
         self.input_traces.show(*_traces(response, "inputs", "saturated_inputs"))
-        self.output_ghosts.show(*_traces(ghost, "outputs", None, ghost=True))
-        self.input_ghosts.show(*_traces(ghost, "inputs", None, ghost=True))
+        self.output_ghosts.show(*_traces(ghost, "outputs", None, kind=GHOST))
+        self.input_ghosts.show(*_traces(ghost, "inputs", None, kind=GHOST))
+        sampled = _response_of(_emulated(evaluation), kind)
+        self.output_sampled.show(*_traces(sampled, "outputs", None, kind=SAMPLED))
+        self.input_sampled.show(*_traces(sampled, "inputs", None, kind=SAMPLED))
         update_source(self.limit_source, limits)
         if texts:
             self._refresh_text(evaluation, response, ghost is not None)
@@ -243,6 +270,10 @@ class ResponsePlots:
             styles += " · dashed: inputs clipped at their limits (dotted lines)"
         if has_ghost:
             styles += " · faint violet: pinned design"
+        emulation = getattr(evaluation, "emulation", None)
+        if emulation is not None:
+            styles += (f" · dot-dashed: this K run through a ZOH at T = {format_number(emulation.sample_time)} s"
+                       " (inputs held between samples)")
         self.legend.object = (
             f'<div class="gb-legend">outputs: {" ".join(swatches)}<br>inputs: {" ".join(inputs)}'
             f"<br>{styles}</div>"

@@ -8,7 +8,7 @@ import panel as pn
 
 from ..refresh_policy import detail_options
 from ..spec_rows import spec_check_rows
-from ..theme import TABLE_CSS, format_complex, format_number
+from ..theme import TABLE_CSS, format_complex, format_number, pole_time_text
 from .html_box import HtmlBox
 
 __all__ = ["PoleTable", "ChecksTable"]
@@ -26,7 +26,7 @@ def _pole_rows(descriptions, movable, sampled: bool, kind: str) -> str:
         cells += [
             f'<td class="num">{format_number(description.damping_ratio, 3)}</td>',
             f'<td class="num">{format_number(description.natural_frequency, 4)}</td>',
-            f'<td class="num">{format_number(description.time_constant, 4)}</td>',
+            f'<td class="num">{pole_time_text(description)}</td>',
             '<td>' + ('<span class="gb-pass">stable</span>' if description.stable
                       else f'<span class="gb-fail">{description.verdict}</span>') + "</td>",
             "<td>" + ("yes" if can_move else '<span class="gb-fixed">no (uncontrollable)</span>') + "</td>",
@@ -42,7 +42,7 @@ def _pole_table(descriptions, movable, sampled: bool, kind: str) -> str:
     header = "<th>#</th><th>pole" + (" z" if sampled else " s") + "</th>"
     if sampled:
         header += "<th>as s = ln z / T</th>"
-    header += "<th>damping ratio</th><th>natural freq. (rad/s)</th><th>time constant (s)</th><th>stability</th><th>movable</th>"
+    header += "<th>damping ratio</th><th>natural freq. (rad/s)</th><th title='time to decay by a factor e; for an unstable pole the time to grow by e'>time constant / growth time (s)</th><th>stability</th><th>movable</th>"
     return (f'<table class="gb-table gb-poles-{kind}"><tr>{header}</tr>'
             + _pole_rows(descriptions, movable, sampled, kind) + "</table>")
 
@@ -119,43 +119,105 @@ class ChecksTable:
     def refresh(self, evaluation) -> None:
         html = ['<div class="gb-heading">specs</div>']
         report = evaluation.spec_report
+        pins = [(name, pin) for name, pin in self.state.pins if pin.plant is evaluation.plant]
+        heads = "".join(f'<th class="gb-pin-column">{escape(name)}</th>' for name, _ in pins)
         if report is None or not report.checks:
             html.append('<div class="gb-note">This plant has no specs to check against.</div>')
         else:
             verdict = ('<span class="gb-pass">every spec met</span>' if report.all_passed
                        else '<span class="gb-fail">some specs not met</span>')
             html.append(f'<div class="gb-note">{verdict}</div>')
-            rows = spec_check_rows(report, prefix="gb-")
+            rows = spec_check_rows(report, prefix="gb-", extra_columns=[_pinned_achieved(report, pin)
+                                                                         for _, pin in pins])
             html.append('<table class="gb-table gb-specs"><tr><th>spec</th><th>required</th><th>achieved</th>'
-                        "<th>result</th></tr>" + rows + "</table>")
+                        f"<th>result</th>{heads}</tr>" + rows + "</table>")
         html.append('<div class="gb-heading">margins (loop broken at the plant input)</div>')
         if evaluation.margins is None and detail_options(self.state.detail).gesture:
             html.append('<div class="gb-note">Margins follow when the design is complete '
                         '(on release, or a moment after the page opens).</div>')
         else:
-            html.append(_margins_html(evaluation.margins))
+            html.append(_margins_html(evaluation.margins, [(name, pin.margins) for name, pin in pins]))
+        if pins:
+            html.append('<div class="gb-heading">this design beside the pins</div>')
+            html.append(_comparison_html(evaluation, pins))
+        others = len(self.state.pins) - len(pins)
+        if others:
+            html.append(f'<div class="gb-small">{others} pin(s) belong to another plant or time domain and are '
+                        "not compared here.</div>")
         self.pane.object = "".join(html)
 
 
-def _margins_html(margins) -> str:
+def _pinned_achieved(report, pin) -> list[str]:
+    """The pin's achieved value for each check of ``report`` (matched by spec and subject), as cells."""
+    found = {}
+    if pin.spec_report is not None:
+        found = {(c.description, c.subject): c for c in pin.spec_report.checks}
+    cells = []
+    for check in report.checks:
+        other = found.get((check.description, check.subject))
+        cells.append(format_number(other.achieved) if other is not None else "—")
+    return cells
+
+
+def _peak_and_settling(evaluation) -> tuple:
+    """(slowest settling time, peak |u|) of the reference step (initial condition when there is none)."""
+    responses = evaluation.responses
+    response = responses.step if responses.step is not None else responses.initial
+    if response is None:
+        return None, None
+    settling = max((m.settling_time for m in response.output_metrics), default=None)
+    peak = max((m.peak_magnitude for m in response.input_metrics), default=None)
+    return settling, peak
+
+
+def _comparison_html(evaluation, pins) -> str:
+    """Settling, peak effort and margins of the current design and of each pin, side by side."""
+    designs = [("this design", evaluation), *pins]
+    values = []
+    for _, design in designs:
+        settling, peak = _peak_and_settling(design)
+        margins = design.margins
+        values.append([settling, peak,
+                       None if margins is None else margins.phase_margin_deg,
+                       None if margins is None else margins.gain_margin_db_min,
+                       None if margins is None else margins.disk_margin])
+    labels = ["slowest settling, step (s)", "peak |u|, step", "phase margin (deg)", "smallest gain margin (dB)",
+              "1/‖S‖∞ at the input"]
+    head = "".join(f"<th>{escape(name)}</th>" for name, _ in designs)
+    body = "".join(
+        f"<tr><td>{label}</td>" + "".join(f'<td class="num">{format_number(v[row])}</td>' for v in values) + "</tr>"
+        for row, label in enumerate(labels)
+    )
+    return f'<table class="gb-table gb-pin-comparison"><tr><th></th>{head}</tr>{body}</table>'
+
+
+def _margins_html(margins, pins=()) -> str:
+    """The margins table; ``pins``: (name, margins) of pinned designs, one more column each."""
     if margins is None:
         return '<div class="gb-note">Margins are not available for this design.</div>'
     if not margins.stable_nominal:
         return f'<div class="gb-note">The closed loop is unstable, so margins are not meaningful. {escape(margins.note)}</div>'
     rows = [
-        ("gain margin, increase (dB)", margins.gain_margin_increase_db),
-        ("gain margin, decrease (dB)", margins.gain_margin_decrease_db),
-        ("phase margin (deg)", margins.phase_margin_deg),
-        ("crossover frequency (rad/s)", margins.crossover_frequency),
-        ("delay margin (s)", margins.delay_margin),
-        ("disk margin", margins.disk_margin),
-        ("peak sensitivity", margins.peak_sensitivity),
+        ("gain margin, increase (dB)", "gain_margin_increase_db"),
+        ("gain margin, decrease (dB)", "gain_margin_decrease_db"),
+        ("phase margin (deg)", "phase_margin_deg"),
+        ("crossover frequency (rad/s)", "crossover_frequency"),
+        ("delay margin (s)", "delay_margin"),
+        ("disk margin 1/‖S‖∞ at the input", "disk_margin"),
+        ("peak input sensitivity ‖S‖∞", "peak_sensitivity"),
     ]
+
+    def cell(source, field):
+        value = getattr(source, field, None) if source is not None and source.stable_nominal else None
+        return f'<td class="num">{format_number(value) if value is not None else "—"}</td>'
+
+    head = ("<tr><th></th><th>this design</th>" + "".join(f"<th>{escape(name)}</th>" for name, _ in pins) + "</tr>"
+            if pins else "")
     body = "".join(
-        f'<tr><td>{label}</td><td class="num">{format_number(value) if value is not None else "—"}</td></tr>'
-        for label, value in rows
+        f"<tr><td>{label}</td>{cell(margins, field)}" + "".join(cell(pinned, field) for _, pinned in pins) + "</tr>"
+        for label, field in rows
     )
     note = f'<div class="gb-small">{escape(margins.note)}</div>' if margins.note else ""
     scope = ("every input at once (disk margin); gain and phase margins one loop at a time"
              if margins.input_count > 1 else "single input")
-    return f'<table class="gb-table gb-margins">{body}</table><div class="gb-small">{scope}</div>{note}'
+    return f'<table class="gb-table gb-margins">{head}{body}</table><div class="gb-small">{scope}</div>{note}'
