@@ -388,12 +388,6 @@ def _decision_at(family: RankOneFamily, value: float, poles: np.ndarray) -> Stab
     return decide_stability(poles, norm, family.state_count, 1.0 if family.sampled else None)
 
 
-def _current_decision(family: RankOneFamily, value: float | None = None) -> StabilityDecision:
-    """The one stability decision on the loop at ``value`` (default: the current value)."""
-    value = family.current_value if value is None else value
-    return _decision_at(family, value, _poles_and_counts(family, np.array([value]))[0][0])
-
-
 def _poles_and_counts(family: RankOneFamily, values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Poles (len(values), n) and the number on or past the boundary at each value."""
     return _poles_and_counts_each([family], [values])[0]
@@ -862,17 +856,18 @@ def _intervals_from_families(jobs) -> list[StableIntervals]:
     values = [probes[k][1] if k in probes else np.array([families[k].current_value]) for k in range(len(jobs))]
     counted = _poles_and_counts_each(families, values)
     return [
-        _intervals_result(*job, everywhere[k], points_of.get(k), probes.get(k), counted[k][1])
+        _intervals_result(*job, everywhere[k], points_of.get(k), probes.get(k), counted[k][1], counted[k][0][0])
         for k, job in enumerate(jobs)
     ]
 
 
 def _intervals_result(family: RankOneFamily, entry, label: str, fixed_reason, everywhere: bool, points, probe,
-                      quick) -> StableIntervals:
+                      quick, current_poles) -> StableIntervals:
     """One family's intervals from its stages: mirror-pair verdict, crossings, and the counts at the probe.
 
     Without crossings to classify (no effect, or mirror pairs) ``quick`` holds the
-    count at the current value only.
+    count at the current value only. ``current_poles`` are the poles at the current value
+    (the probe's first value in every case), so its verdict needs no eigenvalue problem of its own.
     """
     v0 = family.current_value
     sampled = family.sampled
@@ -893,7 +888,7 @@ def _intervals_result(family: RankOneFamily, entry, label: str, fixed_reason, ev
             )
         return StableIntervals(entry, intervals, (), v0, current_is_stable, reason,
                                ((-math.inf, math.inf, count),), fixed, False, sampled, tolerance, (),
-                               _current_decision(family).verdict)
+                               _decision_at(family, v0, current_poles).verdict)
 
     if everywhere:
         current_is_stable = bool(quick[0] == 0)
@@ -904,7 +899,7 @@ def _intervals_result(family: RankOneFamily, entry, label: str, fixed_reason, ev
             "no value of this entry stabilises the loop: change another entry first"
         )
         return StableIntervals(entry, (), (), v0, current_is_stable, reason, (), fixed, True, sampled,
-                               tolerance, (), _current_decision(family).verdict)
+                               tolerance, (), _decision_at(family, v0, current_poles).verdict)
 
     points = list(points)
     gains, counts, current_is_stable, located = _classify_pieces(family, points, probe, quick)
@@ -918,7 +913,7 @@ def _intervals_result(family: RankOneFamily, entry, label: str, fixed_reason, ev
     pieces = tuple((edges[k], edges[k + 1], int(counts[k])) for k in range(len(counts)))
     intervals = tuple((low, high) for low, high, count in pieces if count == 0)
     warnings = []
-    decision = _current_decision(family)
+    decision = _decision_at(family, v0, current_poles)
     current_is_stable = decision.stable
     inside = [(low, high) for low, high in intervals if low < v0 < high]
     if inside and not decision.stable:

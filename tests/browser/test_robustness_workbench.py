@@ -122,7 +122,7 @@ def test_moving_one_parameter_shows_whether_the_design_holds(workbench):
     gain = _open_cart(workbench)
     family, _ = _cart()
     workbench.open_tab("Robust")
-    text = page.locator(".gb-note").filter(has_text="the design")
+    text = page.locator(".gb-note").filter(has_text="the design").filter(visible=True)  # an earlier test may leave hidden ones
     # reference: numpy's eigenvalues of the model at nominal (the panel starts there)
     plant = family.plant_at({"cart_mass": 1.35})
     expected_margin = -np.linalg.eigvals(plant.A - plant.B @ gain).real.max()
@@ -133,8 +133,12 @@ def test_moving_one_parameter_shows_whether_the_design_holds(workbench):
 
     # The note may first describe the gain the page opened with; wait until it describes this one
     # (under load the typed gain's evaluation arrives later), then judge what it says.
-    workbench.wait_for(lambda: text.count() and "cart_mass = 1.35" in text.first.inner_text()
-                       and shown_margin() is not None and abs(shown_margin() - expected_margin) < 5e-3,
-                       "the moved model with the typed gain")
+    try:
+        workbench.wait_for(lambda: text.count() and "cart_mass = 1.35" in text.first.inner_text()
+                           and shown_margin() is not None and abs(shown_margin() - expected_margin) < 5e-3,
+                           "the moved model with the typed gain")
+    except AssertionError as failure:
+        shown = text.first.inner_text() if text.count() else "(no note)"
+        raise AssertionError(f"{failure}; expected margin {expected_margin:.4g}, the note says: {shown}") from None
     assert ("holds" in text.first.inner_text()) == (expected_margin > 0)
     assert abs(shown_margin() - expected_margin) < 5e-3
